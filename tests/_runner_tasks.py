@@ -1,0 +1,34 @@
+"""Module-level task functions for the runner tests.
+
+They live in their own module so that worker processes (process pool, dask workers) can import
+them by name: pickle sends functions by reference, never by value.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+
+
+def square_after(item: tuple[int, float]) -> int:
+    """Sleep ``item[1]`` seconds, then return ``item[0] ** 2``; a negative value raises ValueError."""
+    value, delay = item
+    time.sleep(delay)
+    if value < 0:
+        raise ValueError(f"negative value {value!r}")
+    return value * value
+
+
+def pid_after(delay: float) -> int:
+    """Sleep, then report which process ran the item."""
+    time.sleep(delay)
+    return os.getpid()
+
+
+def die_on(item: tuple[int, float]) -> int:
+    """Like :func:`square_after`, but value -1 ends the worker process abruptly (no exception)."""
+    value, delay = item
+    if value == -1:
+        os._exit(3)
+    time.sleep(delay)
+    return value * value

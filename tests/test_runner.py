@@ -1,0 +1,254 @@
+"""Tests for dct.runner: in-process and local-pool runners, and make_runner's choice.
+
+The reference for every result is the task function itself, called directly in this process
+(plain Python arithmetic), so a runner that loses, duplicates or mixes up items fails.
+Real worker processes are used throughout; nothing is mocked.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+import time
+
+import pytest
+
+import _runner_tasks as tasks
+from dct.runner import (
+    DaskRunner,
+    InlineRunner,
+    LocalPoolRunner,
+    Runner,
+    RunnerError,
+    TaskFailed,
+    make_runner,
+)
+
+ITEMS = [(v, 0.01) for v in (3, 0, 7, -2, 11, 5, -9, 2)]
+
+
+def expected(fn, items):
+    """What each index should hold: fn(item) here, or the failure's type name."""
+    out = {}
+    for i, item in enumerate(items):
+        try:
+            out[i] = fn(item)
+        except Exception as exc:
+            out[i] = type(exc).__name__
+    return out
+
+
+def collect(runner: Runner, fn, items, **kw):
+    got = {}
+    for index, result in runner.map_unordered(fn, items, **kw):
+        assert index not in got, f"index {index} yielded twice"
+        got[index] = result
+    return got
+
+
+def normalised(got):
+    return {i: (r.message.split(":")[0] if isinstance(r, TaskFailed) else r) for i, r in got.items()}
+
+
+@pytest.fixture(scope="module")
+def pool():
+    with LocalPoolRunner(workers=2) as runner:
+        yield runner
+
+
+def test_inline_and_pool_match_direct_calls(pool):
+    want = expected(tasks.square_after, ITEMS)
+    with InlineRunner() as inline:
+        got_inline = collect(inline, tasks.square_after, ITEMS)
+    got_pool = collect(pool, tasks.square_after, ITEMS)
+    assert normalised(got_inline) == want
+    assert normalised(got_pool) == want
+    # TaskFailed compares by (index, message), so the two runners agree exactly.
+    assert got_inline == got_pool
+
+
+def test_failure_is_reported_for_its_item_only(pool):
+    got = collect(pool, tasks.square_after, ITEMS)
+    failed = {i for i, r in got.items() if isinstance(r, TaskFailed)}
+    assert failed == {3, 6}
+    assert got[3].index == 3
+    assert got[3].message == "ValueError: negative value -2"
+    assert "square_after" in got[3].detail  # the worker's traceback came back
+    assert str(got[6]) == "item 6: ValueError: negative value -9"
+    assert got[4] == 121
+
+
+def test_inline_runs_in_this_process():
+    with InlineRunner() as inline:
+        got = collect(inline, tasks.pid_after, [0.0, 0.0])
+    assert set(got.values()) == {os.getpid()}
+
+
+def test_pool_runs_elsewhere_and_is_reused_across_calls(pool):
+    first = set(collect(pool, tasks.pid_after, [0.2] * 4).values())
+    second = set(collect(pool, tasks.pid_after, [0.2] * 4).values())
+    assert os.getpid() not in first
+    assert len(first) == 2  # both workers took part
+    assert second <= first  # same processes, not a fresh pool per call
+
+
+def test_results_stream_in_completion_order(pool):
+    collect(pool, tasks.pid_after, [0.0, 0.0])  # make sure both workers are up
+    items = [(1, 1.2), (2, 0.05), (3, 0.05), (4, 0.05)]
+    start = time.monotonic()
+    order, times = [], []
+    for index, _ in pool.map_unordered(tasks.square_after, items):
+        order.append(index)
+        times.append(time.monotonic() - start)
+    assert sorted(order) == [0, 1, 2, 3]
+    # The slow item finishes last, and the quick ones were handed over long before it did.
+    assert order[-1] == 0
+    assert times[0] < 0.8 < times[-1]
+
+
+def test_cancel_stops_promptly(pool):
+    collect(pool, tasks.pid_after, [0.0, 0.0])
+    cancel = threading.Event()
+    items = [(v, 0.3) for v in range(40)]
+    seen = []
+    start = time.monotonic()
+    for index, _ in pool.map_unordered(tasks.square_after, items, cancel=cancel):
+        seen.append(index)
+        if len(seen) == 2:
+            cancel.set()
+            cancel_at = time.monotonic()
+    ended = time.monotonic()
+    assert 2 <= len(seen) < 6
+    assert ended - cancel_at < 0.3
+    assert ended - start < 3.0  # 40 items x 0.3 s on 2 workers would take 6 s
+    # The pool is still usable after a cancelled run.
+    assert collect(pool, tasks.square_after, [(4, 0.0)]) == {0: 16}
+
+
+def test_cancel_from_another_thread_while_waiting(pool):
+    cancel = threading.Event()
+    timer = threading.Timer(0.3, cancel.set)
+    start = time.monotonic()
+    timer.start()
+    try:
+        got = collect(pool, tasks.square_after, [(v, 1.5) for v in range(4)], cancel=cancel)
+    finally:
+        timer.cancel()
+    assert got == {}
+    assert time.monotonic() - start < 1.0
+
+
+def test_inline_cancel_between_items():
+    cancel = threading.Event()
+    seen = []
+    with InlineRunner() as inline:
+        for index, _ in inline.map_unordered(tasks.square_after, [(v, 0.0) for v in range(5)], cancel=cancel):
+            seen.append(index)
+            cancel.set()
+    assert seen == [0]
+
+
+def test_consumer_stopping_early_leaves_pool_usable(pool):
+    it = pool.map_unordered(tasks.square_after, [(v, 0.1) for v in range(20)])
+    next(it)
+    it.close()
+    assert collect(pool, tasks.square_after, [(5, 0.0), (6, 0.0)]) == {0: 25, 1: 36}
+
+
+def test_dead_worker_fails_only_its_own_item():
+    items = [(v, 0.05) for v in range(8)]
+    items[3] = (-1, 0.0)  # this one kills its worker process
+    with LocalPoolRunner(workers=2) as runner:
+        got = collect(runner, tasks.die_on, items)
+        assert sorted(got) == list(range(8))
+        assert isinstance(got[3], TaskFailed)
+        assert "worker process died" in got[3].message
+        assert {i: r for i, r in got.items() if i != 3} == {i: v * v for i, (v, _) in enumerate(items) if i != 3}
+        # A fresh pool took over, and stays usable.
+        assert collect(runner, tasks.square_after, [(9, 0.0)]) == {0: 81}
+
+
+def test_closed_runner_refuses_work():
+    runner = LocalPoolRunner(workers=2)
+    assert collect(runner, tasks.square_after, [(2, 0.0)]) == {0: 4}
+    runner.close()
+    runner.close()  # twice is fine
+    with pytest.raises(RunnerError, match="closed"):
+        runner.map_unordered(tasks.square_after, [(2, 0.0)])
+
+
+def test_unpicklable_function_is_refused_up_front(pool):
+    with pytest.raises(ValueError, match="picklable"):
+        pool.map_unordered(lambda x: x, [1])
+
+
+@pytest.mark.parametrize("bad", ["stop", 1])
+def test_cancel_must_be_an_event(bad):
+    with InlineRunner() as inline, pytest.raises(ValueError, match=repr(bad)):
+        inline.map_unordered(tasks.square_after, [(1, 0.0)], cancel=bad)
+
+
+def test_fn_must_be_callable():
+    with InlineRunner() as inline, pytest.raises(ValueError, match="'square'"):
+        inline.map_unordered("square", [1])
+
+
+def test_empty_items(pool):
+    assert collect(pool, tasks.square_after, []) == {}
+    with InlineRunner() as inline:
+        assert collect(inline, tasks.square_after, []) == {}
+
+
+def test_task_failed_pickles():
+    import pickle
+
+    failure = TaskFailed(4, "ValueError: x", "trace")
+    back = pickle.loads(pickle.dumps(failure))
+    assert (back.index, back.message, back.detail) == (4, "ValueError: x", "trace")
+
+
+def test_descriptions():
+    assert LocalPoolRunner(workers=2).description == "local pool, 2 processes"
+    assert LocalPoolRunner(workers=1).description == "local pool, 1 process"
+    assert InlineRunner().description == "in-process, 1 worker"
+    assert DaskRunner("tcp://127.0.0.1:8786").description == "dask scheduler tcp://127.0.0.1:8786 (not connected yet)"
+
+
+def test_make_runner_choices(monkeypatch):
+    monkeypatch.delenv("EIGHTFOLD_SCHEDULER", raising=False)
+    assert isinstance(make_runner(workers=1), InlineRunner)
+    two = make_runner(workers=2)
+    assert isinstance(two, LocalPoolRunner) and two.workers == 2
+    default = make_runner()
+    assert isinstance(default, LocalPoolRunner) and default.workers == (os.cpu_count() or 1)
+    dask = make_runner(scheduler="tcp://10.0.0.5:8786")
+    assert isinstance(dask, DaskRunner) and dask.address == "tcp://10.0.0.5:8786"
+
+
+def test_make_runner_reads_environment_only_when_asked(monkeypatch):
+    monkeypatch.setenv("EIGHTFOLD_SCHEDULER", "tcp://10.0.0.7:8786")
+    from_env = make_runner(use_env=True)
+    assert isinstance(from_env, DaskRunner) and from_env.address == "tcp://10.0.0.7:8786"
+    assert isinstance(make_runner(workers=2), LocalPoolRunner)  # use_env defaults to False
+    explicit = make_runner(scheduler="tcp://10.0.0.8:8786", use_env=True)
+    assert explicit.address == "tcp://10.0.0.8:8786"  # an explicit scheduler wins
+    monkeypatch.setenv("EIGHTFOLD_SCHEDULER", "  ")
+    assert isinstance(make_runner(workers=1, use_env=True), InlineRunner)
+
+
+@pytest.mark.parametrize("bad", [0, -1, True, 2.5, "2"])
+def test_make_runner_rejects_bad_workers(bad):
+    with pytest.raises(ValueError, match="workers"):
+        make_runner(workers=bad)
+    with pytest.raises(ValueError, match=repr(bad).replace(".", r"\.")):
+        LocalPoolRunner(workers=bad)
+
+
+def test_make_runner_rejects_workers_with_scheduler():
+    with pytest.raises(ValueError, match="cannot be combined"):
+        make_runner(workers=2, scheduler="tcp://127.0.0.1:8786")
+
+
+def test_pool_refuses_fork():
+    with pytest.raises(ValueError, match="'fork'"):
+        LocalPoolRunner(workers=2, start_method="fork")
