@@ -400,7 +400,7 @@ class DaskRunner(Runner):
         name = getattr(fn, "__name__", "task")
         todo = deque(range(len(items)))
         inflight: dict[Any, int] = {}
-        completed = as_completed()
+        completed = as_completed(loop=client.loop)
 
         def submit_more() -> None:
             # A window, not the whole list: uploads carry file bytes, and the scheduler holds

@@ -1,0 +1,265 @@
+"""SSIM and PSNR, with reference statistics computed once and reused for every setting.
+
+SSIM follows Wang, Bovik, Sheikh & Simoncelli, "Image quality assessment: from error visibility to
+structural similarity", IEEE Trans. Image Processing 13(4), 2004, doi:10.1109/TIP.2003.819861,
+with the paper's settings: an 11x11 circular-symmetric Gaussian window with sigma 1.5, K1 = 0.01,
+K2 = 0.03 and L = 255 (section III-C). For each pixel, with local statistics taken under the window,
+
+.. math::
+
+    \\mathrm{SSIM}(x, y) = \\frac{(2\\mu_x\\mu_y + C_1)(2\\sigma_{xy} + C_2)}
+                               {(\\mu_x^2 + \\mu_y^2 + C_1)(\\sigma_x^2 + \\sigma_y^2 + C_2)},
+    \\qquad C_1 = (K_1 L)^2,\\ C_2 = (K_2 L)^2          \\quad\\text{(eq. 13)}
+
+and the image's score is the mean of the map (eq. 17). The conventions match
+``skimage.metrics.structural_similarity(gaussian_weights=True, sigma=1.5, use_sample_covariance=False,
+data_range=255)``: the filter truncates at 3.5 sigma (radius 5), borders are mirrored (scipy's
+"reflect"), and the mean excludes a 5-pixel border.
+
+Speed: the reference image's mean and variance depend only on the reference, so a
+:class:`ReferenceStats` computes them once; each setting then needs only the three filtered images
+that involve the distorted image (mean, second moment, cross moment). The separable Gaussian runs as
+banded matrix products over 64-row strips (BLAS), which bounds temporary memory to a strip and is
+several times faster than a general-purpose filter. Second moments are taken on level-shifted
+samples (minus 128) to keep float32 cancellation small.
+"""
+
+from __future__ import annotations
+
+import math
+from functools import lru_cache
+
+import numpy as np
+
+K1 = 0.01
+K2 = 0.03
+L = 255.0
+C1 = (K1 * L) ** 2
+C2 = (K2 * L) ** 2
+SIGMA = 1.5
+TRUNCATE = 3.5
+RADIUS = int(TRUNCATE * SIGMA + 0.5)  # 5, as scipy.ndimage computes it
+STRIP = 64  # rows per strip; also the column tile of the horizontal pass
+LOCAL_TILE = 16  # side of the tiles whose mean SSIM is the "local" SSIM
+LOCAL_PERCENTILE = 5.0  # the local floor looks at the worst 5 % of tiles
+
+
+@lru_cache(maxsize=None)
+def gaussian_weights(sigma: float = SIGMA, radius: int = RADIUS) -> np.ndarray:
+    """Normalized 1-D Gaussian taps, shape (2*radius+1,), float64 (as scipy.ndimage builds them)."""
+    x = np.arange(-radius, radius + 1, dtype=np.float64)
+    w = np.exp(-0.5 * (x / sigma) ** 2)
+    return w / w.sum()
+
+
+@lru_cache(maxsize=None)
+def _band(tile: int) -> np.ndarray:
+    """(tile, tile + 2r) banded matrix: output row i is the window over padded rows i..i+2r."""
+    w = gaussian_weights().astype(np.float32)
+    band = np.zeros((tile, tile + 2 * RADIUS), dtype=np.float32)
+    for i in range(tile):
+        band[i, i : i + 2 * RADIUS + 1] = w
+    return band
+
+
+def _rows_with_halo(plane: np.ndarray, start: int, stop: int) -> np.ndarray:
+    """Rows start-r .. stop+r of a plane, mirrored ("reflect") past its top and bottom edges."""
+    h = plane.shape[-2]
+    lo, hi = start - RADIUS, stop + RADIUS
+    core = plane[..., max(lo, 0) : min(hi, h), :]
+    top, bottom = max(0, -lo), max(0, hi - h)
+    if top or bottom:
+        pad = [(0, 0)] * (core.ndim - 2) + [(top, bottom), (0, 0)]
+        core = np.pad(core, pad, mode="symmetric")
+    return core
+
+
+def _filter_strip(rows: np.ndarray, out_rows: int) -> np.ndarray:
+    """Gaussian-filter a stack of row strips that carry an r-row halo.
+
+    Parameters
+    ----------
+    rows : ndarray, shape (n, out_rows + 2r, W), float32
+    out_rows : int
+
+    Returns
+    -------
+    ndarray, shape (n, out_rows, W), float32
+    """
+    n, _, w = rows.shape
+    vertical = _band(out_rows) @ rows  # (n, out_rows, W)
+    padded = np.pad(vertical, ((0, 0), (0, 0), (RADIUS, RADIUS)), mode="symmetric")
+    out = np.empty((n, out_rows, w), dtype=np.float32)
+    band_t = _band(STRIP).T
+    for c in range(0, w, STRIP):
+        width = min(STRIP, w - c)
+        bt = band_t if width == STRIP else _band(width).T
+        np.matmul(padded[:, :, c : c + width + 2 * RADIUS], bt, out=out[:, :, c : c + width])
+    return out
+
+
+def gaussian_filter(image: np.ndarray) -> np.ndarray:
+    """The SSIM window filter on a 2-D image (sigma 1.5, radius 5, mirrored borders), float32."""
+    plane = np.asarray(image, dtype=np.float32)
+    out = np.empty(plane.shape, dtype=np.float32)
+    for s in range(0, plane.shape[0], STRIP):
+        e = min(s + STRIP, plane.shape[0])
+        out[s:e] = _filter_strip(_rows_with_halo(plane, s, e)[None], e - s)[0]
+    return out
+
+
+class ReferenceStats:
+    """Local mean and variance of a reference plane, for SSIM against many distorted versions.
+
+    Parameters
+    ----------
+    reference : ndarray, shape (H, W)
+        Samples on the 0..255 scale (uint8 or float).
+    """
+
+    def __init__(self, reference: np.ndarray):
+        ref = np.asarray(reference)
+        if ref.ndim != 2:
+            raise ValueError(f"reference must be a 2-D plane, got shape {ref.shape!r}")
+        if min(ref.shape) < 2 * RADIUS + 1:
+            raise ValueError(
+                f"SSIM needs a plane of at least {2 * RADIUS + 1}x{2 * RADIUS + 1} pixels for its 11x11 "
+                f"window, got {ref.shape[1]}x{ref.shape[0]}"
+            )
+        self.shape = ref.shape
+        self.shifted = ref.astype(np.float32) - 128.0  # x - 128
+        self.mean = np.empty(ref.shape, dtype=np.float32)  # mu_x
+        self.var = np.empty(ref.shape, dtype=np.float32)  # sigma_x^2
+        for s, e in self._strips():
+            rows = _rows_with_halo(self.shifted, s, e)
+            f = _filter_strip(np.stack([rows, rows * rows]), e - s)
+            self.mean[s:e] = f[0] + 128.0
+            self.var[s:e] = f[1] - f[0] * f[0]
+
+    def _strips(self):
+        h = self.shape[0]
+        for s in range(0, h, STRIP):
+            yield s, min(s + STRIP, h)
+
+    def compare(self, distorted: np.ndarray, *, want_map: bool = False) -> "SsimResult":
+        """SSIM of a distorted plane against this reference.
+
+        Parameters
+        ----------
+        distorted : ndarray, shape (H, W), on the 0..255 scale
+        want_map : bool
+            Also return the full SSIM map (H, W), float32.
+        """
+        y = np.asarray(distorted, dtype=np.float32)
+        if y.shape != self.shape:
+            raise ValueError(f"distorted plane has shape {y.shape!r}, the reference {self.shape!r}")
+        h, w = self.shape
+        ys_full = y - 128.0
+        ssim_map = np.empty(self.shape, dtype=np.float32) if want_map else None
+        total = 0.0
+        tiles = []
+        sq_err = 0.0
+        for s, e in self._strips():
+            rows = _rows_with_halo(ys_full, s, e)
+            xs = _rows_with_halo(self.shifted, s, e)
+            f = _filter_strip(np.stack([rows, rows * rows, xs * rows]), e - s)
+            uys, yy, xy = f[0], f[1], f[2]
+            ux = self.mean[s:e]
+            uxs = ux - 128.0
+            uy = uys + 128.0
+            vy = yy - uys * uys
+            vxy = xy - uxs * uys
+            num = (2.0 * ux * uy + C1) * (2.0 * vxy + C2)
+            den = (ux * ux + uy * uy + C1) * (self.var[s:e] + vy + C2)
+            strip = num / den
+            if ssim_map is not None:
+                ssim_map[s:e] = strip
+            # Mean over the interior, excluding a RADIUS-wide border (as scikit-image crops).
+            r0, r1 = max(s, RADIUS), min(e, h - RADIUS)
+            if r1 > r0:
+                total += float(strip[r0 - s : r1 - s, RADIUS : w - RADIUS].sum(dtype=np.float64))
+            tiles.append(_tile_means(strip))
+            d = ys_full[s:e] - self.shifted[s:e]
+            sq_err += float(np.dot(d.ravel(), d.ravel()))
+        interior = (h - 2 * RADIUS) * (w - 2 * RADIUS)
+        tile_means = np.concatenate(tiles, axis=0)
+        return SsimResult(
+            ssim=total / interior,
+            local=float(np.percentile(tile_means, LOCAL_PERCENTILE)),
+            psnr=psnr_from_mse(sq_err / (h * w)),
+            ssim_map=ssim_map,
+            tile_means=tile_means,
+        )
+
+
+def _tile_means(strip: np.ndarray) -> np.ndarray:
+    """Mean SSIM of LOCAL_TILE-sized tiles of a strip (partial edge tiles use their own pixels)."""
+    h, w = strip.shape
+    ty, tx = -(-h // LOCAL_TILE), -(-w // LOCAL_TILE)
+    sums = np.add.reduceat(np.add.reduceat(strip, np.arange(0, h, LOCAL_TILE), axis=0, dtype=np.float64),
+                           np.arange(0, w, LOCAL_TILE), axis=1)
+    rows = np.minimum(LOCAL_TILE, h - np.arange(ty) * LOCAL_TILE)
+    cols = np.minimum(LOCAL_TILE, w - np.arange(tx) * LOCAL_TILE)
+    return sums / np.outer(rows, cols)
+
+
+class SsimResult:
+    """SSIM of one distorted plane: mean score, local floor statistic, PSNR and optionally the map."""
+
+    __slots__ = ("ssim", "local", "psnr", "ssim_map", "tile_means")
+
+    def __init__(self, *, ssim, local, psnr, ssim_map, tile_means):
+        self.ssim = ssim
+        self.local = local
+        self.psnr = psnr
+        self.ssim_map = ssim_map
+        self.tile_means = tile_means
+
+
+def psnr_from_mse(mse: float) -> float:
+    """PSNR in dB for 8-bit data (peak 255); infinite when the planes are identical."""
+    return math.inf if mse <= 0 else 10.0 * math.log10(L * L / mse)
+
+
+def ssim(reference: np.ndarray, distorted: np.ndarray, *, want_map: bool = False) -> SsimResult:
+    """SSIM of two planes on the 0..255 scale (see the module docstring for the conventions)."""
+    return ReferenceStats(reference).compare(distorted, want_map=want_map)
+
+
+def worst_regions(ssim_map: np.ndarray, *, count: int = 3, size: int = 96) -> list[tuple[int, int, int, int, float]]:
+    """The ``count`` non-overlapping size x size windows with the lowest mean SSIM.
+
+    Parameters
+    ----------
+    ssim_map : ndarray, shape (H, W)
+    count : int
+    size : int
+        Window side in pixels (clipped to the image).
+
+    Returns
+    -------
+    list of (top, left, height, width, mean_ssim), worst first.
+    """
+    if count < 1 or size < 1:
+        raise ValueError(f"count and size must be positive, got count={count!r}, size={size!r}")
+    m = np.asarray(ssim_map, dtype=np.float64)
+    h, w = m.shape
+    sh, sw = min(size, h), min(size, w)
+    integral = np.zeros((h + 1, w + 1))
+    integral[1:, 1:] = m.cumsum(0).cumsum(1)
+    # Candidate windows on a grid of a quarter window, scored by their mean.
+    step_y, step_x = max(1, sh // 4), max(1, sw // 4)
+    tops = np.unique(np.r_[np.arange(0, h - sh + 1, step_y), h - sh])
+    lefts = np.unique(np.r_[np.arange(0, w - sw + 1, step_x), w - sw])
+    t, l = np.meshgrid(tops, lefts, indexing="ij")
+    sums = integral[t + sh, l + sw] - integral[t, l + sw] - integral[t + sh, l] + integral[t, l]
+    means = (sums / (sh * sw)).ravel()
+    t, l = t.ravel(), l.ravel()
+    chosen: list[tuple[int, int, int, int, float]] = []
+    for idx in np.argsort(means, kind="stable"):
+        top, left = int(t[idx]), int(l[idx])
+        if all(abs(top - ct) >= sh or abs(left - cl) >= sw for ct, cl, *_ in chosen):
+            chosen.append((top, left, sh, sw, float(means[idx])))
+            if len(chosen) == count:
+                break
+    return chosen
