@@ -306,11 +306,7 @@ def _open_first_frame(fp, max_pixels: int, notes: list[str]):
                 raise ImageRejected(f"truncated or corrupt {fmt} data") from None
             raise ImageRejected("not an image file (unrecognised format)") from None
         except Image.DecompressionBombError as exc:
-            m = _BOMB_MESSAGE.search(str(exc))
-            size = f"{_format_px(int(m.group(1)))} " if m else ""
-            raise ImageRejected(
-                f"image too large: {size}exceeds the {_format_px(max_pixels)} limit"
-            ) from None
+            raise ImageRejected(_too_large(_header_size(fp), str(exc), max_pixels)) from None
         except MemoryError:
             raise ImageRejected("image too large to decode in memory") from None
         except Exception:  # Pillow plugins raise all sorts (SyntaxError, struct.error, ...)
@@ -320,10 +316,7 @@ def _open_first_frame(fp, max_pixels: int, notes: list[str]):
         try:
             w, h = im.size
             if w * h > max_pixels:
-                raise ImageRejected(
-                    f"image too large: {w} x {h} = {_format_px(w * h)} exceeds the "
-                    f"{_format_px(max_pixels)} limit"
-                )
+                raise ImageRejected(_too_large((w, h), "", max_pixels))
             if w < 1 or h < 1:
                 raise ImageRejected(f"image has no pixels ({w} x {h})")
             n_frames = _frame_count(im, notes)
@@ -361,6 +354,40 @@ def _open_first_frame(fp, max_pixels: int, notes: list[str]):
         if note not in notes:
             notes.append(note)
     return oriented, fmt, icc
+
+
+def _header_size(fp) -> tuple[int, int] | None:
+    """Width and height from the header alone, as ``Image.open`` would read them, minus its bomb check.
+
+    Pillow raises ``DecompressionBombError`` without saying the dimensions; the plugin registry
+    (``Image.ID`` / ``Image.OPEN``) lets us parse the header again to name them.
+    """
+    fp.seek(0)
+    prefix = fp.read(16)
+    for fmt in Image.ID:
+        factory, accept = Image.OPEN[fmt]
+        try:
+            if accept is not None and not accept(prefix):
+                continue
+            fp.seek(0)
+            im = factory(fp, "")
+        except Exception:
+            continue
+        size = im.size
+        im.close()
+        return size
+    return None
+
+
+def _too_large(size, pillow_message: str, max_pixels: int) -> str:
+    limit = _format_px(max_pixels)
+    if size is not None:
+        w, h = size
+        return f"image too large: {w} x {h} = {_format_px(w * h)} exceeds the {limit} limit"
+    m = _BOMB_MESSAGE.search(pillow_message)
+    if m:
+        return f"image too large: {_format_px(int(m.group(1)))} exceeds the {limit} limit"
+    return f"image too large: exceeds the {limit} limit"
 
 
 def _frame_count(im, notes: list[str]) -> int:
