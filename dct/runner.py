@@ -208,7 +208,18 @@ class LocalPoolRunner(Runner):
             if self._closed:
                 raise RunnerError("this runner is closed")
             if self._pool is None:
-                self._pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=self._context)
+                pool = cf.ProcessPoolExecutor(max_workers=self.workers, mp_context=self._context)
+                # A worker that cannot even start (unimportable __main__, broken environment) would
+                # otherwise look like every item crashing its worker in turn.
+                try:
+                    pool.submit(os.getpid).result()
+                except BrokenProcessPool as exc:
+                    pool.shutdown(wait=False, cancel_futures=True)
+                    raise RunnerError(
+                        "the local worker processes could not start; run from an importable script "
+                        "or module (not stdin) with this project installed"
+                    ) from exc
+                self._pool = pool
             return self._pool
 
     def _drop_pool(self, pool: cf.ProcessPoolExecutor) -> None:
@@ -235,8 +246,10 @@ class LocalPoolRunner(Runner):
         inflight: dict[cf.Future, int] = {}
         isolated: int | None = None  # the suspect running alone, if any
         broken: cf.ProcessPoolExecutor | None = None  # pool seen broken, not yet drained
-        # A bounded window keeps cancellation cheap and limits what a dying worker takes down.
-        window = 2 * self.workers
+        # One item per worker in flight: the executor hands submitted items to its call queue
+        # early, and those can no longer be cancelled, so a larger window would make a cancelled
+        # run keep the workers busy; it also limits what a dying worker takes down with it.
+        window = self.workers
         pool = self._get_pool()
         try:
             while todo or suspects or inflight:

@@ -8,6 +8,8 @@ Real worker processes are used throughout; nothing is mocked.
 from __future__ import annotations
 
 import os
+import subprocess
+import sys
 import threading
 import time
 
@@ -136,6 +138,10 @@ def test_cancel_from_another_thread_while_waiting(pool):
         timer.cancel()
     assert got == {}
     assert time.monotonic() - start < 1.0
+    # Only the two running items were left to finish (1.5 s each, started at 0 s), not the
+    # other two: the next call is answered soon after they end.
+    assert collect(pool, tasks.square_after, [(2, 0.0)]) == {0: 4}
+    assert time.monotonic() - start < 2.5
 
 
 def test_inline_cancel_between_items():
@@ -166,6 +172,21 @@ def test_dead_worker_fails_only_its_own_item():
         assert {i: r for i, r in got.items() if i != 3} == {i: v * v for i, (v, _) in enumerate(items) if i != 3}
         # A fresh pool took over, and stays usable.
         assert collect(runner, tasks.square_after, [(9, 0.0)]) == {0: 81}
+
+
+def test_workers_that_cannot_start_are_a_clear_error():
+    # A script on stdin cannot be re-imported by forkserver children, so no worker ever starts.
+    script = (
+        "from dct.runner import LocalPoolRunner, RunnerError\n"
+        "try:\n"
+        "    list(LocalPoolRunner(workers=2).map_unordered(abs, [1, -2]))\n"
+        "except RunnerError as exc:\n"
+        "    print('RunnerError:', exc)\n"
+    )
+    proc = subprocess.run(
+        [sys.executable, "-"], input=script, capture_output=True, text=True, timeout=60, cwd=os.path.dirname(__file__)
+    )
+    assert "RunnerError: the local worker processes could not start" in proc.stdout, proc.stderr[-2000:]
 
 
 def test_closed_runner_refuses_work():

@@ -1,0 +1,156 @@
+"""DaskRunner against a real dask.distributed cluster on 127.0.0.1.
+
+The cluster is ``distributed.LocalCluster`` with two worker processes (each under its own nanny),
+one thread each. The reference for results is the local process pool (and, through it, the task
+function called directly, see tests/test_runner.py). The worker-loss test kills a worker process
+with SIGKILL while tasks are in flight and relies on the scheduler's own rescheduling; the
+scheduler's per-prefix ``suspicious`` counter proves that a running task was really lost and rerun.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import socket
+import threading
+import time
+
+import pytest
+
+import _runner_tasks as tasks
+from dct.runner import DaskRunner, LocalPoolRunner, RunnerError, TaskFailed, make_runner
+
+distributed = pytest.importorskip("distributed")
+
+pytestmark = pytest.mark.slow
+
+ITEMS = [(v, 0.02) for v in (3, 0, 7, -2, 11, 5, -9, 2, 4, 6)]
+
+
+def new_cluster(n_workers: int = 2):
+    return distributed.LocalCluster(
+        n_workers=n_workers,
+        processes=True,
+        threads_per_worker=1,
+        host="127.0.0.1",
+        # Not None: the scheduler then still opens its HTTP server, on the fixed port 8787, and
+        # warns when another cluster on this machine holds it. Port 0 lets the OS choose.
+        dashboard_address="127.0.0.1:0",
+    )
+
+
+@pytest.fixture(scope="module")
+def cluster():
+    with new_cluster() as c:
+        yield c
+
+
+def collect(runner, fn, items, **kw):
+    got = {}
+    for index, result in runner.map_unordered(fn, items, **kw):
+        assert index not in got, f"index {index} yielded twice"
+        got[index] = result
+    return got
+
+
+def test_same_results_as_local_pool(cluster):
+    with LocalPoolRunner(workers=2) as pool:
+        local = collect(pool, tasks.square_after, ITEMS)
+    with DaskRunner(cluster.scheduler_address) as runner:
+        remote = collect(runner, tasks.square_after, ITEMS)
+        assert runner.description == f"dask scheduler {cluster.scheduler_address}, 2 workers (2 threads)"
+    assert remote == local  # TaskFailed compares by (index, message)
+    assert remote[3] == TaskFailed(3, "ValueError: negative value -2")
+    assert "square_after" in remote[3].detail
+
+
+def test_work_runs_on_the_workers(cluster):
+    with DaskRunner(cluster.scheduler_address) as runner:
+        pids = set(collect(runner, tasks.pid_after, [0.2] * 6).values())
+        worker_pids = set(runner.connect().run(os.getpid).values())
+    assert os.getpid() not in pids
+    assert pids <= worker_pids and len(pids) == 2
+
+
+def test_identical_items_stay_separate(cluster):
+    # Equal arguments must not be merged into one task (keys are explicit and unique).
+    with DaskRunner(cluster.scheduler_address) as runner:
+        got = collect(runner, tasks.square_after, [(3, 0.0)] * 5)
+        again = collect(runner, tasks.square_after, [(3, 0.0)] * 5)
+    assert got == again == {i: 9 for i in range(5)}
+
+
+def test_environment_variable_selects_the_cluster(cluster, monkeypatch):
+    monkeypatch.setenv("EIGHTFOLD_SCHEDULER", cluster.scheduler_address)
+    with make_runner(use_env=True) as runner:
+        assert isinstance(runner, DaskRunner)
+        assert collect(runner, tasks.square_after, [(6, 0.0)]) == {0: 36}
+
+
+def test_cancel_stops_promptly(cluster):
+    cancel = threading.Event()
+    seen = []
+    with DaskRunner(cluster.scheduler_address) as runner:
+        for index, _ in runner.map_unordered(tasks.square_after, [(v, 0.3) for v in range(40)], cancel=cancel):
+            seen.append(index)
+            if len(seen) == 2:
+                cancel.set()
+                cancel_at = time.monotonic()
+        assert time.monotonic() - cancel_at < 0.3
+        assert 2 <= len(seen) < 6
+        # Still usable afterwards, and nothing of the cancelled run is left on the scheduler.
+        assert collect(runner, tasks.square_after, [(8, 0.0)]) == {0: 64}
+        deadline = time.monotonic() + 5
+        while cluster.scheduler.tasks and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert not cluster.scheduler.tasks
+
+
+def test_unreachable_scheduler_is_a_clear_error():
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]  # free now, and nothing listens there
+    runner = DaskRunner(f"tcp://127.0.0.1:{port}", connect_timeout_s=1)
+    with pytest.raises(RunnerError, match=f"cannot reach the dask scheduler at 'tcp://127.0.0.1:{port}'"):
+        runner.map_unordered(tasks.square_after, [(1, 0.0)])
+    runner.close()
+
+
+def test_scheduler_without_workers_is_a_clear_error():
+    with new_cluster(n_workers=0) as empty, DaskRunner(empty.scheduler_address, worker_wait_s=1) as runner:
+        with pytest.raises(RunnerError, match="no workers"):
+            runner.map_unordered(tasks.square_after, [(1, 0.0)])
+
+
+@pytest.mark.parametrize(
+    "kw, bad",
+    [({"retries": -1}, "-1"), ({"connect_timeout_s": 0}, "0"), ({"worker_wait_s": "5"}, "'5'")],
+)
+def test_bad_options_are_refused(kw, bad):
+    with pytest.raises(ValueError, match=bad):
+        DaskRunner("tcp://127.0.0.1:8786", **kw)
+
+
+@pytest.mark.parametrize("bad", ["", "  ", None, 8786])
+def test_bad_address_is_refused(bad):
+    with pytest.raises(ValueError, match="address"):
+        DaskRunner(bad)
+
+
+def test_worker_killed_mid_run_still_gives_every_result():
+    items = [(v, 0.4) for v in range(12)]
+    with new_cluster() as c, DaskRunner(c.scheduler_address) as runner:
+        victim = None
+        got = {}
+        for index, result in runner.map_unordered(tasks.square_after, items):
+            got[index] = result
+            if victim is None:
+                # Both workers are busy now (window of 4 tasks, 0.4 s each): kill one of them.
+                victim = next(iter(runner.connect().run(os.getpid).values()))
+                os.kill(victim, signal.SIGKILL)
+        assert got == {i: v * v for i, (v, _) in enumerate(items)}
+        # The scheduler saw a running task lose its worker and gave it to another.
+        assert sum(p.suspicious for p in c.scheduler.task_prefixes.values()) >= 1
+        # The nanny replaced the dead process.
+        c.wait_for_workers(2, timeout=20)
+        assert victim not in runner.connect().run(os.getpid).values()
