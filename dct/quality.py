@@ -87,15 +87,17 @@ def _filter_strip(rows: np.ndarray, out_rows: int) -> np.ndarray:
     ndarray, shape (n, out_rows, W), float32
     """
     n, _, w = rows.shape
-    vertical = _band(out_rows) @ rows  # (n, out_rows, W)
+    vertical = _band(out_rows) @ rows  # (n, out_rows, W): one GEMM per plane of the stack
+    # Horizontal pass: cut the mirrored rows into overlapping (tile + 2r)-wide windows, one per
+    # output tile, and run them all through a single GEMM with the band matrix.
+    tiles = -(-w // STRIP)
+    extra = tiles * STRIP - w
     padded = np.pad(vertical, ((0, 0), (0, 0), (RADIUS, RADIUS)), mode="symmetric")
-    out = np.empty((n, out_rows, w), dtype=np.float32)
-    band_t = _band(STRIP).T
-    for c in range(0, w, STRIP):
-        width = min(STRIP, w - c)
-        bt = band_t if width == STRIP else _band(width).T
-        np.matmul(padded[:, :, c : c + width + 2 * RADIUS], bt, out=out[:, :, c : c + width])
-    return out
+    if extra:
+        padded = np.pad(padded, ((0, 0), (0, 0), (0, extra)), mode="edge")
+    windows = np.lib.stride_tricks.sliding_window_view(padded, STRIP + 2 * RADIUS, axis=2)[:, :, ::STRIP]
+    out = windows.reshape(-1, STRIP + 2 * RADIUS) @ _band(STRIP).T
+    return out.reshape(n, out_rows, tiles * STRIP)[:, :, :w]
 
 
 def gaussian_filter(image: np.ndarray) -> np.ndarray:

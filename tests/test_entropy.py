@@ -1,0 +1,127 @@
+"""Symbol statistics and Huffman code lengths against ITU-T T.81 and libjpeg's output (via Pillow)."""
+
+import heapq
+import io
+
+import numpy as np
+import pytest
+from PIL import Image
+from skimage import data
+
+from dct import entropy
+from tests.jpeg_markers import huffman_tables, scan_bytes, segments
+
+
+def test_hand_worked_block():
+    # One block, zigzag order: DC 5, AC 3 at position 3, AC -1 at position 20, the rest zero.
+    # T.81 F.1.2: DC diff 5 -> SSSS 3 (3 extra bits); AC: run 2 / size 2 -> 0x22 (2 bits); then a run of
+    # 16 zeros (positions 4..19) -> ZRL, then run 0 / size 1 -> 0x01 (1 bit); then EOB.
+    block = np.zeros((1, 64), int)
+    block[0, 0], block[0, 3], block[0, 20] = 5, 3, -1
+    s = entropy.block_symbol_stats(block)
+    assert s.dc.tolist()[:4] == [0, 0, 0, 1]
+    assert {int(k): int(v) for k, v in enumerate(s.ac) if v} == {0x22: 1, 0xF0: 1, 0x01: 1, 0x00: 1}
+    assert s.extra_bits == 3 + 2 + 1
+
+
+def test_dc_prediction_and_last_coefficient():
+    # DC differences run along the blocks (predictor starts at 0); a non-zero at position 63 needs no EOB.
+    blocks = np.zeros((3, 64), int)
+    blocks[:, 0] = [4, 4, -3]  # diffs 4, 0, -7 -> categories 3, 0, 3
+    blocks[2, 63] = 1  # run of 62 zeros: 3 ZRL + run 14 / size 1
+    s = entropy.block_symbol_stats(blocks)
+    assert s.dc[0] == 1 and s.dc[3] == 2
+    assert s.ac[0x00] == 2 and s.ac[0xF0] == 3 and s.ac[0xE1] == 1
+
+
+def test_magnitude_categories_table_f1():
+    # T.81 Table F.1: category k holds magnitudes 2^(k-1) .. 2^k - 1.
+    v = np.array([0, 1, -1, 2, 3, -4, 7, 8, 1023, -1024, 2047])
+    assert entropy.magnitude_category(v).tolist() == [0, 1, 1, 2, 2, 3, 3, 4, 10, 11, 11]
+
+
+def test_standard_tables_equal_libjpeg_dht():
+    # libjpeg (through Pillow, optimize=False) writes the Annex K.3 tables; compare BITS and HUFFVAL.
+    buf = io.BytesIO()
+    Image.fromarray(data.astronaut()).save(buf, "JPEG", quality=75, optimize=False)
+    t = huffman_tables(buf.getvalue())
+    assert t[(0, 0)] == (list(entropy.STD_DC_LUMA_BITS), list(entropy.STD_DC_LUMA_VALS))
+    assert t[(1, 0)] == (list(entropy.STD_AC_LUMA_BITS), list(entropy.STD_AC_LUMA_VALS))
+    assert t[(0, 1)] == (list(entropy.STD_DC_CHROMA_BITS), list(entropy.STD_DC_CHROMA_VALS))
+    assert t[(1, 1)] == (list(entropy.STD_AC_CHROMA_BITS), list(entropy.STD_AC_CHROMA_VALS))
+
+
+def test_header_layout_matches_libjpeg():
+    # Segment sizes of libjpeg's baseline output: SOI, APP0 JFIF, DQT x2, SOF0, DHT x4, SOS (T.81 Annex B).
+    buf = io.BytesIO()
+    Image.fromarray(data.coffee()).save(buf, "JPEG", quality=80, optimize=True)
+    segs = list(segments(buf.getvalue()))
+    markers = [m for m, _ in segs]
+    assert markers == [0xE0, 0xDB, 0xDB, 0xC0, 0xC4, 0xC4, 0xC4, 0xC4, 0xDA]
+    sizes = {m: 2 + 2 + len(p) for m, p in segs}
+    assert sizes[0xE0] == entropy.APP0_JFIF_BYTES
+    assert sizes[0xDB] == entropy.DQT_BYTES
+    assert sizes[0xC0] == entropy.sof0_bytes(3)
+    assert sizes[0xDA] == entropy.sos_bytes(3)
+    for m, p in segs:
+        if m == 0xC4:
+            assert 2 + 2 + len(p) == entropy.dht_bytes(sum(p[1:17]))
+
+
+def test_stuffing_rate_is_close_to_measured_libjpeg():
+    # Measured on libjpeg output: the share of stuffed 0xFF 0x00 pairs in the scan is near 1/256
+    # (between 0.5/256 and 1.5/256 on scikit-image's sample photos).
+    for img in (data.astronaut(), data.coffee(), data.chelsea()):
+        for q in (40, 90):
+            buf = io.BytesIO()
+            Image.fromarray(img).save(buf, "JPEG", quality=q, optimize=True)
+            scan = scan_bytes(buf.getvalue())
+            stuffed = scan.count(b"\xff\x00")
+            rate = stuffed / (len(scan) - stuffed)
+            assert 0.5 / 256 < rate < 1.5 / 256
+            assert 0.5 * rate < entropy.STUFFING_RATE < 2 * rate
+
+
+def reference_huffman_cost(counts):
+    """Plain Huffman cost (sum of count * depth) by repeated merging, an independent oracle."""
+    heap = [int(c) for c in counts if c > 0]
+    heapq.heapify(heap)
+    cost = 0
+    while len(heap) > 1:
+        a, b = heapq.heappop(heap), heapq.heappop(heap)
+        cost += a + b
+        heapq.heappush(heap, a + b)
+    return cost
+
+
+def test_optimal_lengths_are_optimal_with_reserved_code():
+    rng = np.random.default_rng(7)
+    counts = rng.integers(0, 5000, 256)
+    counts[rng.random(256) < 0.3] = 0
+    lengths = entropy.optimal_code_lengths(counts)
+    assert (lengths[counts == 0] == 0).all() and (lengths[counts > 0] > 0).all()
+    # Kraft sum stays below 1: the all-ones code point is reserved (T.81 K.2).
+    kraft = sum(2.0 ** -int(l) for l in lengths if l)
+    assert kraft <= 1 - 2.0**-16 + 1e-12
+    # With the pseudo-symbol (count 1) the tree is a plain Huffman tree, hence optimal.
+    with_reserved = np.append(counts, 1)
+    expected = reference_huffman_cost(with_reserved)
+    got = int(np.dot(counts, lengths))
+    assert expected - int(lengths.max()) <= got <= expected
+
+
+def test_lengths_limited_to_16_bits():
+    # Fibonacci counts force a Huffman tree deeper than 16 levels; Figure K.3 must cap it.
+    fib = [1, 1]
+    while len(fib) < 30:
+        fib.append(fib[-1] + fib[-2])
+    lengths = entropy.optimal_code_lengths(np.array(fib))
+    assert lengths.max() == 16
+    assert sum(2.0 ** -int(l) for l in lengths) < 1.0
+
+
+def test_missing_code_is_an_error():
+    counts = np.zeros(16, int)
+    counts[13] = 1
+    with pytest.raises(ValueError, match=r"symbols \[13\] have no code"):
+        entropy.coded_bits(counts, entropy.STD_LENGTHS["dc_luma"])

@@ -1,0 +1,83 @@
+"""SSIM against scikit-image and the settings of Wang, Bovik, Sheikh & Simoncelli (2004)."""
+
+import numpy as np
+import pytest
+from scipy import ndimage
+from skimage import data
+from skimage.metrics import structural_similarity
+
+from dct import quality
+
+
+def skimage_ssim(x, y, full=False):
+    # The paper's settings as scikit-image exposes them (Gaussian window sigma 1.5, K1 0.01, K2 0.03, L 255).
+    return structural_similarity(
+        x.astype(np.float64), y.astype(np.float64), gaussian_weights=True, sigma=1.5,
+        use_sample_covariance=False, data_range=255, full=full,
+    )
+
+
+def distorted_pairs():
+    rng = np.random.default_rng(11)
+    cam = data.camera().astype(np.float64)
+    green = data.astronaut()[..., 1].astype(np.float64)[:301, :413]  # odd sizes
+    yield cam, np.clip(cam + rng.normal(0, 10, cam.shape), 0, 255)
+    yield green, ndimage.gaussian_filter(green, 2.0)
+    yield green, np.clip(green * 0.8 + 30, 0, 255)
+    yield cam[:128, :256], np.round(cam[:128, :256] / 16) * 16  # power-of-two width
+
+
+@pytest.mark.parametrize("pair", list(distorted_pairs()), ids=["noise", "blur", "contrast", "posterize"])
+def test_equals_scikit_image(pair):
+    x, y = pair
+    ref_mean, ref_map = skimage_ssim(x, y, full=True)
+    ours = quality.ssim(x, y, want_map=True)
+    assert abs(ours.ssim - ref_mean) < 1e-4
+    np.testing.assert_allclose(ours.ssim_map, ref_map, atol=1e-3)
+
+
+def test_reference_statistics_are_reused_consistently():
+    x = data.camera().astype(np.float64)
+    ref = quality.ReferenceStats(x)
+    for sigma in (0.5, 1.5):
+        y = ndimage.gaussian_filter(x, sigma)
+        assert abs(ref.compare(y).ssim - skimage_ssim(x, y)) < 1e-4
+
+
+def test_identical_images():
+    x = data.camera()
+    r = quality.ssim(x, x)
+    assert r.ssim == pytest.approx(1.0, abs=1e-6) and r.psnr == float("inf")
+
+
+def test_psnr_definition():
+    # PSNR = 10 log10(255^2 / MSE): a uniform error of 5 levels gives MSE 25.
+    x = np.full((32, 32), 100.0)
+    assert quality.ssim(x, x + 5).psnr == pytest.approx(10 * np.log10(255**2 / 25))
+
+
+@pytest.mark.parametrize("shape", [(70, 97), (128, 128), (11, 300)])
+def test_window_filter_equals_scipy(shape):
+    # scipy.ndimage.gaussian_filter(sigma=1.5, truncate=3.5, mode="reflect") is what scikit-image uses.
+    rng = np.random.default_rng(5)
+    img = rng.random(shape) * 255
+    ref = ndimage.gaussian_filter(img, 1.5, truncate=3.5, mode="reflect")
+    np.testing.assert_allclose(quality.gaussian_filter(img), ref, atol=2e-3)
+
+
+def test_worst_regions_find_planted_damage():
+    m = np.ones((300, 400))
+    m[200:240, 50:90] = 0.2  # the worst spot
+    m[20:60, 300:340] = 0.6  # the second
+    regions = quality.worst_regions(m, count=3, size=64)
+    assert len(regions) == 3
+    top, left, h, w, mean = regions[0]
+    assert top <= 200 and top + h >= 240 and left <= 50 and left + w >= 90
+    t2, l2, *_ = regions[1]
+    assert t2 <= 20 + 40 and l2 + 64 >= 340 - 10
+    assert regions[0][4] < regions[1][4] <= regions[2][4]
+
+
+def test_too_small_for_the_window():
+    with pytest.raises(ValueError, match="at least 11x11 pixels"):
+        quality.ReferenceStats(np.zeros((10, 40)))
