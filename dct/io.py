@@ -517,6 +517,20 @@ def _transform_from(icc: bytes | None, in_mode: str):
     return ImageCms.buildTransform(src, _srgb_profile(), in_mode, "RGB")
 
 
+@functools.lru_cache(maxsize=32)
+def _gray_lut(icc: bytes) -> np.ndarray:
+    """256-entry gray -> sRGB gray table from an unoptimized transform.
+
+    LittleCMS's optimized 8-bit gray pipeline is several levels off in the deep shadows; one exact
+    pass over the 256 possible values, then a lookup, is both exact and fast.
+    """
+    src = ImageCms.ImageCmsProfile(io.BytesIO(icc))
+    transform = ImageCms.buildTransform(src, _srgb_profile(), "L", "RGB", flags=ImageCms.Flags.NOOPTIMIZE)
+    ramp = Image.fromarray(np.arange(256, dtype=np.uint8)[None, :])
+    rgb = np.asarray(ImageCms.applyTransform(ramp, transform), dtype=np.float64)[0]
+    return np.rint(rgb.mean(axis=1)).astype(np.uint8)
+
+
 _PROFILE_SPACE = {"L": "GRAY", "RGB": "RGB", "CMYK": "CMYK"}
 
 
@@ -538,12 +552,15 @@ def _apply_icc(img, icc: bytes, notes: list[str]):
     if space == "RGB" and "srgb" in desc.lower():
         return img  # already sRGB; converting would only add rounding
     try:
-        out = ImageCms.applyTransform(img, _transform_from(icc, img.mode))
+        if img.mode == "L":
+            out = Image.fromarray(_gray_lut(icc)[np.asarray(img)])
+        else:
+            out = ImageCms.applyTransform(img, _transform_from(icc, img.mode))
     except Exception:
         notes.append("colour profile could not be applied: pixels used as stored")
         return img
     notes.append("embedded colour profile converted to sRGB")
-    return out.convert("L") if img.mode == "L" else out
+    return out
 
 
 def _lab_to_srgb(img, notes: list[str]):
