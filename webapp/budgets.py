@@ -1,0 +1,150 @@
+"""Budgets: frozen snapshots under unguessable tokens, the share view, sign-offs, owner re-freeze.
+
+A budget has one edit token (the owner's link) and one view token per snapshot (the share link).
+Freezing again makes a new snapshot with a new view token; old snapshots and their sign-offs stay.
+"""
+
+from __future__ import annotations
+
+from flask import Blueprint, abort, redirect, render_template, request, url_for
+
+from webapp import results, store, validation
+from webapp.sweeps import document_download, load_sweep, redecide
+from webapp.views import is_htmx
+
+bp = Blueprint("budgets", __name__)
+
+
+def freeze(db, sweep: dict) -> tuple[str, str]:
+    """(edit_token, view_token) of a new budget holding the sweep's current decision."""
+    edit_token = store.create_budget(db, sweep["id"])
+    view_token = store.add_snapshot(db, edit_token, sweep["params"], sweep["document"])
+    return edit_token, view_token
+
+
+def refreeze(db, budget: dict, params: dict) -> str:
+    """A new snapshot of the same budget with changed targets, re-decided from the sweep's curves."""
+    sweep = store.get_sweep(db, budget["sweep_id"])
+    document = redecide(sweep, params)
+    return store.add_snapshot(db, budget["edit_token"], params, document)
+
+
+def links(edit_token: str, view_token: str) -> dict:
+    return {
+        "token": view_token,
+        "view_url": url_for("budgets.show", token=view_token, _external=True),
+        "edit_url": url_for("budgets.show", token=edit_token, _external=True),
+    }
+
+
+def resolve(token):
+    db = store.get_db()
+    found = store.resolve_token(db, token)
+    if found is None:
+        abort(404, description="no budget behind this link")
+    return (db, *found)
+
+
+def class_names(document: dict) -> list[str]:
+    names = []
+    for entry in document.get("classes", []):
+        if entry["name"] not in names:
+            names.append(entry["name"])
+    return names
+
+
+def verdicts(signoffs: list[dict]) -> dict:
+    """Per class: the latest verdict of each person, and whether everyone who spoke approves."""
+    out: dict = {}
+    for s in signoffs:
+        out.setdefault(s["class"], {})[s["name"]] = s["verdict"]
+    return {
+        cls: {"people": people, "approved": all(v == "approve" for v in people.values())}
+        for cls, people in out.items()
+    }
+
+
+def worst_images(document: dict, entry: dict, count: int = 3):
+    """The ``count`` lowest-SSIM images of a class entry, for the designer to look at first."""
+    rows = results.images_of(document, entry)
+    rows.sort(key=lambda nim: nim[1].get("ssim") if nim[1].get("ssim") is not None else 2.0)
+    return rows[:count]
+
+
+def page_context(db, role, snapshot, budget, *, error=None, error_class=None, form=None):
+    document = snapshot["document"]
+    trail = store.signoffs_for(db, snapshot["view_token"])
+    ctx = {
+        "role": role, "snapshot": snapshot, "budget": budget, "doc": document, "params": snapshot["params"],
+        "classes": class_names(document), "trail": trail, "verdicts": verdicts(trail),
+        "totals": results.totals(document), "chart": results.chart, "error": error,
+        "error_class": error_class, "form": form or {}, "token": request.view_args["token"],
+        "worst_of": lambda entry: worst_images(document, entry),
+    }
+    if role == "edit":
+        ctx["snapshots"] = store.list_snapshots(db, budget["edit_token"])
+        ctx["share_url"] = url_for("budgets.show", token=snapshot["view_token"], _external=True)
+        ctx["edit_url"] = url_for("budgets.show", token=budget["edit_token"], _external=True)
+    return ctx
+
+
+@bp.post("/sweeps/<sweep_id>/freeze")
+def freeze_page(sweep_id):
+    db, sweep = load_sweep(sweep_id)
+    if sweep["status"] != "done":
+        abort(409, description=f"this sweep is {sweep['status']}; only a finished sweep can be frozen")
+    edit_token, _ = freeze(db, sweep)
+    return redirect(url_for("budgets.show", token=edit_token), code=303)
+
+
+@bp.get("/budgets/<token>")
+def show(token):
+    db, role, snapshot, budget = resolve(token)
+    return render_template("budget.html", **page_context(db, role, snapshot, budget))
+
+
+@bp.post("/budgets/<token>/signoffs")
+def signoff(token):
+    db, role, snapshot, budget = resolve(token)
+    document = snapshot["document"]
+    payload = {k: request.form.get(k, "") for k in ("class", "name", "verdict", "comment")}
+    try:
+        fields = validation.signoff(payload, class_names(document))
+    except ValueError as exc:
+        ctx = page_context(db, role, snapshot, budget, error=str(exc), error_class=payload["class"], form=payload)
+        if is_htmx() and payload["class"] in ctx["classes"]:
+            return render_template("_partials/signoff_block.html", cls=payload["class"], **ctx), 400
+        return render_template("budget.html", **ctx), 400
+    store.add_signoff(db, snapshot["view_token"], **fields)
+    if is_htmx():
+        ctx = page_context(db, role, snapshot, budget)
+        return render_template("_partials/signoff_block.html", cls=fields["class_name"], **ctx)
+    return redirect(url_for("budgets.show", token=token) + f"#class-{fields['class_name']}", code=303)
+
+
+def targets_from_form(form, params: dict) -> dict:
+    classes = {}
+    for key in form:
+        if key.startswith("cls-"):
+            i = key[4:]
+            classes[form[key]] = {"target_ssim": form.get(f"t-{i}", ""), "coverage": form.get(f"c-{i}", "")}
+    return validation.target_changes({"classes": classes}, params)
+
+
+@bp.post("/budgets/<token>/targets")
+def targets(token):
+    db, role, snapshot, budget = resolve(token)
+    if role != "edit":
+        abort(403, description="this is a share link: changing targets needs the owner's edit link")
+    try:
+        params = targets_from_form(request.form, snapshot["params"])
+    except ValueError as exc:
+        return render_template("budget.html", **page_context(db, role, snapshot, budget, error=str(exc))), 400
+    refreeze(db, budget, params)
+    return redirect(url_for("budgets.show", token=token), code=303)
+
+
+@bp.get("/budgets/<token>/document.<any(json, csv):kind>")
+def download(token, kind):
+    _, _, snapshot, _ = resolve(token)
+    return document_download(snapshot["document"], f"eightfold-budget-{snapshot['seq']}", kind)

@@ -1,0 +1,113 @@
+"""Pixels the app shows, always re-encoded from the decoded array and cached on disk per blob.
+
+Originals are shown as PNG from ``dct.io.encode_png`` and candidates as the real JPEG from
+``dct.io.encode_jpeg``; neither carries the upload's metadata (EXIF, GPS, comments).
+"""
+
+from __future__ import annotations
+
+import io
+import json
+
+import numpy as np
+from flask import Response
+
+from webapp import store
+
+THUMB_WIDTH = 96
+
+
+def _setting_key(setting: dict) -> str:
+    return f"q{setting['quality']}-k{setting['cutoff']}-s{setting['subsampling'].replace(':', '')}"
+
+
+def _width_key(width) -> str:
+    return "wfull" if width is None else f"w{int(width)}"
+
+
+def pixels(root, sha: str, width=None) -> np.ndarray:
+    """Decoded (and, for a delivery width, resized) pixels of a stored blob."""
+    from dct.io import decode_image, resize_to_width
+
+    decoded = decode_image(store.blob_path(root, sha).read_bytes())
+    px = decoded.pixels
+    if width is not None and int(width) != px.shape[1]:
+        px = resize_to_width(px, int(width))
+    return px
+
+
+def original_png(root, sha: str, width=None) -> bytes:
+    from dct.io import encode_png
+
+    return store.cached_render(root, sha, f"{_width_key(width)}-orig.png", lambda: encode_png(pixels(root, sha, width)))
+
+
+def thumbnail_png(root, sha: str) -> bytes:
+    from dct.io import encode_png, resize_to_width
+
+    def make():
+        px = pixels(root, sha)
+        if px.shape[1] > THUMB_WIDTH:
+            px = resize_to_width(px, THUMB_WIDTH)
+        return encode_png(px)
+
+    return store.cached_render(root, sha, f"thumb{THUMB_WIDTH}.png", make)
+
+
+def candidate_jpeg(root, sha: str, width, setting: dict) -> bytes:
+    from dct.io import encode_jpeg
+
+    return store.cached_render(
+        root, sha, f"{_width_key(width)}-{_setting_key(setting)}.jpg",
+        lambda: encode_jpeg(pixels(root, sha, width), quality=setting["quality"], cutoff=setting["cutoff"],
+                            subsampling=setting["subsampling"]),
+    )
+
+
+def ssim_map(root, sha: str, width, setting: dict) -> np.ndarray:
+    """Local SSIM map of the simulated coding at ``setting`` (float, image-sized per ``dct.simulate``)."""
+    from dct.simulate import simulate
+
+    def make():
+        result = simulate(pixels(root, sha, width), setting["quality"], setting["subsampling"], setting["cutoff"])
+        buf = io.BytesIO()
+        np.save(buf, np.asarray(result.ssim_map, dtype=np.float32), allow_pickle=False)
+        return buf.getvalue()
+
+    data = store.cached_render(root, sha, f"{_width_key(width)}-{_setting_key(setting)}-ssim.npy", make)
+    return np.load(io.BytesIO(data), allow_pickle=False)
+
+
+def heatmap_png(root, sha: str, width, setting: dict) -> bytes:
+    from webapp.heatmap import ssim_heatmap_png
+
+    return store.cached_render(
+        root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat.png",
+        lambda: ssim_heatmap_png(ssim_map(root, sha, width, setting)),
+    )
+
+
+def worst_crops(root, sha: str, width, setting: dict, *, count: int = 3, size: int = 96) -> list[dict]:
+    from dct.quality import worst_regions
+
+    def make():
+        regions = worst_regions(ssim_map(root, sha, width, setting), count=count, size=size)
+        return json.dumps([
+            {"top": int(t), "left": int(lf), "height": int(h), "width": int(w), "ssim": float(m)}
+            for t, lf, h, w, m in regions
+        ]).encode()
+
+    key = f"{_width_key(width)}-{_setting_key(setting)}-worst{count}x{size}.json"
+    return json.loads(store.cached_render(root, sha, key, make))
+
+
+def png_response(data: bytes) -> Response:
+    resp = Response(data, mimetype="image/png")
+    resp.headers["Cache-Control"] = "private, max-age=3600"
+    return resp
+
+
+def jpeg_response(data: bytes) -> Response:
+    resp = Response(data, mimetype="image/jpeg")
+    resp.headers["Cache-Control"] = "private, max-age=3600"
+    return resp

@@ -1,0 +1,115 @@
+"""Per-image review: original vs candidate at 1:1 and 2:1, the worst crops, SSIM heat-map, blink.
+
+Reachable from a sweep (owner) and from a budget link (designer), each showing the settings of its
+own document. Pixels come from :mod:`webapp.imaging`, never the uploaded file itself.
+"""
+
+from __future__ import annotations
+
+from flask import Blueprint, abort, render_template, url_for
+
+from webapp import imaging, results, store
+
+bp = Blueprint("review", __name__)
+
+
+def _sweep_source(sweep_id):
+    db = store.get_db()
+    sweep = store.get_sweep(db, sweep_id)
+    if sweep is None:
+        abort(404, description=f"no sweep {sweep_id!r}")
+    if sweep["document"] is None:
+        abort(409, description=f"this sweep is {sweep['status']}; review opens once it is done")
+    return db, sweep["document"], sweep["set_id"]
+
+
+def _budget_source(token):
+    db = store.get_db()
+    found = store.resolve_token(db, token)
+    if found is None:
+        abort(404, description="no budget behind this link")
+    _, snapshot, budget = found
+    sweep = store.get_sweep(db, budget["sweep_id"])
+    return db, snapshot["document"], sweep["set_id"]
+
+
+def _image(db, document, set_id, n):
+    images = document.get("images", [])
+    if not 0 <= n < len(images):
+        abort(404, description=f"no image {n!r} in this document (it has {len(images)})")
+    image = images[n]
+    row = db.execute(
+        "SELECT * FROM images WHERE set_id = ? AND filename = ?", (set_id, image["path"])
+    ).fetchone()
+    if row is None:
+        abort(410, description=f"the stored file for {image['path']!r} is gone (its sample set was changed)")
+    entry = results.find_entry(document, image["class"], image.get("width"))
+    setting = (entry or {}).get("setting")
+    fallback = setting is None
+    if fallback:
+        setting = document.get("current") or {"quality": 85, "cutoff": 64, "subsampling": "4:2:0"}
+    return image, row, entry, setting, fallback
+
+
+def _page(db, document, set_id, n, url):
+    image, row, entry, setting, fallback = _image(db, document, set_id, n)
+    root = store.data_dir()
+    width = image.get("width")
+    shape = imaging.pixels(root, row["sha256"], width).shape
+    crops = imaging.worst_crops(root, row["sha256"], width, setting)
+    count = len(document.get("images", []))
+    return render_template(
+        "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=count,
+        px_height=shape[0], px_width=shape[1], crops=crops,
+        prev_url=url(n - 1) if n > 0 else None, next_url=url(n + 1) if n + 1 < count else None,
+        asset=lambda kind: url(n, kind),
+    )
+
+
+def _asset(db, document, set_id, n, kind):
+    image, row, _, setting, _ = _image(db, document, set_id, n)
+    root, width, sha = store.data_dir(), image.get("width"), row["sha256"]
+    if kind == "original.png":
+        return imaging.png_response(imaging.original_png(root, sha, width))
+    if kind == "candidate.jpg":
+        return imaging.jpeg_response(imaging.candidate_jpeg(root, sha, width, setting))
+    return imaging.png_response(imaging.heatmap_png(root, sha, width, setting))
+
+
+ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png'):kind>"
+
+
+@bp.get("/sweeps/<sweep_id>/review/<int:n>")
+def sweep_review(sweep_id, n):
+    db, document, set_id = _sweep_source(sweep_id)
+
+    def url(i, kind=None):
+        if kind:
+            return url_for("review.sweep_asset", sweep_id=sweep_id, n=i, kind=kind)
+        return url_for("review.sweep_review", sweep_id=sweep_id, n=i)
+
+    return _page(db, document, set_id, n, url)
+
+
+@bp.get(f"/sweeps/<sweep_id>/review/<int:n>/{ASSETS}")
+def sweep_asset(sweep_id, n, kind):
+    db, document, set_id = _sweep_source(sweep_id)
+    return _asset(db, document, set_id, n, kind)
+
+
+@bp.get("/budgets/<token>/review/<int:n>")
+def budget_review(token, n):
+    db, document, set_id = _budget_source(token)
+
+    def url(i, kind=None):
+        if kind:
+            return url_for("review.budget_asset", token=token, n=i, kind=kind)
+        return url_for("review.budget_review", token=token, n=i)
+
+    return _page(db, document, set_id, n, url)
+
+
+@bp.get(f"/budgets/<token>/review/<int:n>/{ASSETS}")
+def budget_asset(token, n, kind):
+    db, document, set_id = _budget_source(token)
+    return _asset(db, document, set_id, n, kind)

@@ -1,0 +1,177 @@
+"""Sample sets: upload (files or whole folders), the per-file class table, per-class targets, delete."""
+
+from __future__ import annotations
+
+from collections import Counter
+
+from flask import Blueprint, abort, current_app, flash, redirect, render_template, request, url_for
+
+from webapp import imaging, ingest, store, validation
+from webapp.views import is_htmx
+from webapp.worker import get_worker
+
+bp = Blueprint("samplesets", __name__)
+
+
+def uploaded_files():
+    return [(f.filename, f.read()) for f in request.files.getlist("files") if f and (f.filename or "").strip()]
+
+
+@bp.get("/")
+def home():
+    db = store.get_db()
+    return render_template("home.html", sets=store.list_sets(db))
+
+
+@bp.post("/sets")
+def upload():
+    files = uploaded_files()
+    db = store.get_db()
+    if not files:
+        return render_template("home.html", sets=store.list_sets(db),
+                               error="No files arrived: choose images or a folder first."), 400
+    set_id, images, rejected, _ = ingest.ingest(
+        db, store.data_dir(), files, max_files=current_app.config["MAX_FILES_PER_SET"]
+    )
+    if not images:
+        store.delete_set(db, store.data_dir(), set_id)
+        return render_template("home.html", sets=store.list_sets(db), rejected=rejected,
+                               error="None of the files could be read as an image."), 422
+    return redirect(url_for("samplesets.show", set_id=set_id), code=303)
+
+
+def load_set(set_id):
+    db = store.get_db()
+    row = store.get_set(db, set_id)
+    if row is None:
+        abort(404, description=f"no sample set {set_id!r}")
+    return db, row
+
+
+def target_rows(db, set_id, form=None, params=None):
+    """Rows of the per-class targets table, filled from a posted form, stored params, or defaults."""
+    images = store.set_images(db, set_id)
+    counts = Counter(im["class_name"] for im in images)
+    posted = form_targets(form) if form is not None else {}
+    rows = []
+    for name in store.set_classes(db, set_id):
+        if name in posted:
+            row = posted[name]
+        elif params is not None and name in params["classes"]:
+            spec = params["classes"][name]
+            row = {
+                "target_ssim": spec["target_ssim"], "coverage": spec["coverage"],
+                "widths": ", ".join("" if w is None else str(w) for w in spec["widths"]).strip(", "),
+                "local_floor": spec.get("local_floor") or "", "chroma_floor": spec.get("chroma_floor") or "",
+            }
+        else:
+            row = {"target_ssim": validation.DEFAULT_TARGET_SSIM, "coverage": validation.DEFAULT_COVERAGE,
+                   "widths": "", "local_floor": "", "chroma_floor": ""}
+        rows.append({"name": name, "count": counts[name], **row})
+    return rows
+
+
+def form_targets(form) -> dict:
+    """Raw per-class values from the set page's form (fields cls-N, t-N, c-N, w-N, lf-N, cf-N)."""
+    out = {}
+    for key in form:
+        if key.startswith("cls-"):
+            i = key[4:]
+            out[form[key]] = {
+                "target_ssim": form.get(f"t-{i}", ""), "coverage": form.get(f"c-{i}", ""),
+                "widths": form.get(f"w-{i}", ""), "local_floor": form.get(f"lf-{i}", ""),
+                "chroma_floor": form.get(f"cf-{i}", ""),
+            }
+    return out
+
+
+def form_current(form) -> dict:
+    return {
+        "quality": form.get("cur_quality", "85").strip(),
+        "cutoff": form.get("cur_cutoff", "64").strip(),
+        "subsampling": form.get("cur_subsampling", "4:2:0"),
+    }
+
+
+def apply_class_edits(db, set_id, form) -> None:
+    edits = {}
+    for key in form:
+        if key.startswith("class-"):
+            try:
+                image_id = int(key[6:])
+            except ValueError:
+                continue
+            edits[image_id] = validation.class_name(form[key])
+    if edits:
+        store.update_image_classes(db, set_id, edits)
+
+
+def render_set(db, row, *, error=None, status=200, form=None):
+    set_id = row["id"]
+    current = form_current(form) if form is not None else dict(validation.DEFAULT_CURRENT)
+    return render_template(
+        "sampleset.html", s=row, images=store.set_images(db, set_id), rejected=store.set_rejected(db, set_id),
+        targets=target_rows(db, set_id, form), current=current, sweeps=store.sweeps_for_set(db, set_id),
+        error=error,
+    ), status
+
+
+@bp.get("/sets/<set_id>")
+def show(set_id):
+    db, row = load_set(set_id)
+    return render_set(db, row)
+
+
+@bp.post("/sets/<set_id>/classes")
+def edit_classes(set_id):
+    """A file's class changed: save it and send back the per-class targets table."""
+    db, row = load_set(set_id)
+    try:
+        apply_class_edits(db, set_id, request.form)
+    except ValueError as exc:
+        if is_htmx():
+            return render_template("_partials/class_targets.html", targets=target_rows(db, set_id, request.form),
+                                   error=str(exc)), 400
+        return render_set(db, row, error=str(exc), status=400, form=request.form)
+    if is_htmx():
+        return render_template("_partials/class_targets.html", targets=target_rows(db, set_id, request.form))
+    return redirect(url_for("samplesets.show", set_id=set_id), code=303)
+
+
+@bp.post("/sets/<set_id>/sweeps")
+def start_sweep(set_id):
+    db, row = load_set(set_id)
+    try:
+        apply_class_edits(db, set_id, request.form)
+        classes = {}
+        for name, raw in form_targets(request.form).items():
+            classes[name] = {"target_ssim": raw["target_ssim"], "coverage": raw["coverage"],
+                             "widths": raw["widths"], "local_floor": raw["local_floor"],
+                             "chroma_floor": raw["chroma_floor"]}
+        names = store.set_classes(db, set_id)
+        classes = {k: v for k, v in classes.items() if k in names}
+        params = validation.sweep_request({"classes": classes, "current": form_current(request.form)}, names)
+    except ValueError as exc:
+        return render_set(db, row, error=str(exc), status=400, form=request.form)
+    sweep_id = store.create_sweep(db, set_id, params)
+    get_worker().submit(sweep_id)
+    return redirect(url_for("sweeps.show", sweep_id=sweep_id), code=303)
+
+
+@bp.post("/sets/<set_id>/delete")
+def delete(set_id):
+    db, row = load_set(set_id)
+    for sweep in store.sweeps_for_set(db, set_id):
+        get_worker().cancel(sweep["id"])
+    store.delete_set(db, store.data_dir(), set_id)
+    flash(f"Deleted sample set “{row['name']}”, its sweeps, budgets and stored files.")
+    return redirect(url_for("samplesets.home"), code=303)
+
+
+@bp.get("/sets/<set_id>/images/<int:image_id>/thumb.png")
+def thumbnail(set_id, image_id):
+    db, _ = load_set(set_id)
+    image = db.execute("SELECT * FROM images WHERE id = ? AND set_id = ?", (image_id, set_id)).fetchone()
+    if image is None:
+        abort(404, description=f"no image {image_id!r} in this set")
+    return imaging.png_response(imaging.thumbnail_png(store.data_dir(), image["sha256"]))

@@ -1,0 +1,60 @@
+"""Serving the app with waitress, and the demo that fills in live.
+
+``dct.cli`` calls :func:`serve` for ``eightfold serve`` and ``eightfold demo``.
+"""
+
+from __future__ import annotations
+
+import sys
+
+from webapp import create_app, ingest, store, validation
+from webapp.paths import DEMO_DIR
+
+IMAGE_SUFFIXES = {".jpg", ".jpeg", ".png", ".gif", ".webp", ".tif", ".tiff", ".bmp"}
+
+
+def load_demo(app, folder=DEMO_DIR) -> str:
+    """Store ``demo_images/`` as a sample set (class = folder) and make sure it has a sweep.
+
+    Idempotent: the same files under the same data directory reuse the stored set (content
+    addressing) and its latest sweep that is not failed or cancelled. Returns the sweep id.
+    """
+    files = [(name, data) for name, data in ingest.read_folder(folder)
+             if "." + name.rsplit(".", 1)[-1].lower() in IMAGE_SUFFIXES]
+    if not files:
+        raise SystemExit(f"no demo images under {folder}; run the demo generator script first")
+    with app.app_context():
+        db = store.get_db()
+        set_id, _, _, _ = ingest.ingest(db, app.config["DATA_DIR"], files, name="Fernridge Outfitters demo",
+                                        reuse=True)
+        for sweep in store.sweeps_for_set(db, set_id):
+            if sweep["status"] in ("queued", "running", "done"):
+                return sweep["id"]
+        params = validation.sweep_request({}, store.set_classes(db, set_id))
+        sweep_id = store.create_sweep(db, set_id, params)
+    app.extensions["eightfold_worker"].submit(sweep_id)
+    return sweep_id
+
+
+def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: bool = False, threads: int = 6) -> None:
+    """Run the web app under waitress until interrupted.
+
+    Parameters
+    ----------
+    host, port : where to listen (keyword-only).
+    data_dir : path, optional
+        Where the SQLite file and stored images live; default: ``EIGHTFOLD_DATA_DIR`` or the instance folder.
+    demo : bool
+        Load ``demo_images/`` as a sample set, start its sweep and print the page that fills in live.
+    """
+    from waitress import serve as waitress_serve
+
+    config = {"DATA_DIR": str(data_dir)} if data_dir is not None else None
+    app = create_app(config)
+    base = f"http://{'localhost' if host in ('127.0.0.1', '0.0.0.0', '::') else host}:{port}"
+    if demo:
+        sweep_id = load_demo(app)
+        print(f"Eightfold demo: open {base}/sweeps/{sweep_id} to watch the sweep fill in", file=sys.stderr)
+    else:
+        print(f"Eightfold: serving on {base}/ (data in {app.config['DATA_DIR']})", file=sys.stderr)
+    waitress_serve(app, host=host, port=port, threads=max(4, int(threads)))

@@ -1,0 +1,441 @@
+"""Persistence: SQLite (WAL) for rows, content-addressed files on disk for uploaded originals.
+
+Layout under the data directory::
+
+    eightfold.sqlite3          rows (schema in schema.sql, version in PRAGMA user_version)
+    blobs/ab/abcdef....bin     uploaded originals by sha256, stored as uploaded and never served back
+    renders/ab/abcdef...-*.*   derived pixels (PNG/JPEG/heat-map/SSIM map) cached per blob
+
+Functions take an explicit ``sqlite3.Connection`` so the sweep worker can use its own; request code gets
+one per app context from :func:`get_db`.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import secrets
+import sqlite3
+import threading
+import time
+from datetime import datetime, timezone
+from pathlib import Path
+
+from flask import current_app, g
+
+SCHEMA_VERSION = 1
+SCHEMA_FILE = Path(__file__).with_name("schema.sql")
+STATUSES = ("queued", "running", "done", "failed", "cancelled")
+VERDICTS = ("approve", "needs work")
+
+
+def now_iso() -> str:
+    return datetime.now(timezone.utc).replace(microsecond=0).isoformat()
+
+
+def new_id() -> str:
+    # Set and sweep ids are random too, so a share link does not lead to its neighbours by counting.
+    return secrets.token_hex(8)
+
+
+def new_token() -> str:
+    return secrets.token_urlsafe(24)
+
+
+# --- connections --------------------------------------------------------------------------------
+
+
+def connect(path, *, check_same_thread: bool = True) -> sqlite3.Connection:
+    conn = sqlite3.connect(str(path), timeout=30, check_same_thread=check_same_thread)
+    conn.row_factory = sqlite3.Row
+    conn.execute("PRAGMA foreign_keys = ON")
+    conn.execute("PRAGMA busy_timeout = 30000")
+    return conn
+
+
+def ensure_schema(conn: sqlite3.Connection) -> None:
+    """Create the tables on first use and stamp the schema version."""
+    conn.execute("PRAGMA journal_mode = WAL")
+    version = conn.execute("PRAGMA user_version").fetchone()[0]
+    if version > SCHEMA_VERSION:
+        raise RuntimeError(
+            f"data directory holds schema version {version!r}; this Eightfold knows up to {SCHEMA_VERSION}"
+        )
+    if version < SCHEMA_VERSION:
+        conn.executescript(SCHEMA_FILE.read_text(encoding="utf-8"))
+        conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
+        conn.commit()
+
+
+def get_db() -> sqlite3.Connection:
+    if "db" not in g:
+        g.db = connect(current_app.config["DATABASE"])
+    return g.db
+
+
+def close_db(exc=None) -> None:
+    db = g.pop("db", None)
+    if db is not None:
+        db.close()
+
+
+def init_app(app) -> None:
+    conn = connect(app.config["DATABASE"])
+    try:
+        ensure_schema(conn)
+    finally:
+        conn.close()
+    app.teardown_appcontext(close_db)
+
+
+def data_dir() -> Path:
+    return Path(current_app.config["DATA_DIR"])
+
+
+def _loads(text):
+    return None if text is None else json.loads(text)
+
+
+# --- blobs and renders ----------------------------------------------------------------------------
+
+
+def blob_path(root, sha: str) -> Path:
+    return Path(root) / "blobs" / sha[:2] / f"{sha}.bin"
+
+
+def put_blob(root, data: bytes) -> str:
+    sha = hashlib.sha256(data).hexdigest()
+    path = blob_path(root, sha)
+    if not path.exists():
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp = path.with_suffix(f".tmp{secrets.token_hex(4)}")
+        tmp.write_bytes(data)
+        tmp.replace(path)  # atomic: a crash never leaves a half-written blob under its final name
+    return sha
+
+
+def render_path(root, sha: str, key: str) -> Path:
+    return Path(root) / "renders" / sha[:2] / f"{sha}-{key}"
+
+
+def cached_render(root, sha: str, key: str, make) -> bytes:
+    """Bytes of a derived file, made once by ``make()`` and kept beside the other renders of that blob."""
+    path = render_path(root, sha, key)
+    if path.exists():
+        return path.read_bytes()
+    data = make()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(path.name + f".tmp{secrets.token_hex(4)}")
+    tmp.write_bytes(data)
+    tmp.replace(path)
+    return data
+
+
+def _remove_blob_files(root, sha: str) -> None:
+    blob_path(root, sha).unlink(missing_ok=True)
+    renders = Path(root) / "renders" / sha[:2]
+    if renders.is_dir():
+        for p in renders.glob(f"{sha}-*"):
+            p.unlink(missing_ok=True)
+
+
+# --- sample sets ----------------------------------------------------------------------------------
+
+
+def set_fingerprint(entries) -> str:
+    """sha256 over sorted (filename, class, blob sha) triples: the identity of a sample set's content."""
+    h = hashlib.sha256()
+    for filename, class_name, sha in sorted(entries):
+        h.update(f"{filename}\0{class_name}\0{sha}\n".encode("utf-8"))
+    return h.hexdigest()
+
+
+def create_sample_set(conn, *, name: str, images: list[dict], rejected: list[dict], fingerprint: str) -> str:
+    """Store a set. ``images``: dicts with filename, class, sha256, width, height, warnings."""
+    set_id = new_id()
+    with conn:
+        conn.execute(
+            "INSERT INTO sample_sets (id, name, fingerprint, created) VALUES (?, ?, ?, ?)",
+            (set_id, name, fingerprint, now_iso()),
+        )
+        conn.executemany(
+            "INSERT INTO images (set_id, position, filename, class_name, sha256, width, height, warnings)"
+            " VALUES (?, ?, ?, ?, ?, ?, ?, ?)",
+            [
+                (set_id, i, im["filename"], im["class"], im["sha256"], im["width"], im["height"],
+                 json.dumps(im.get("warnings", [])))
+                for i, im in enumerate(images)
+            ],
+        )
+        conn.executemany(
+            "INSERT INTO rejected (set_id, filename, error) VALUES (?, ?, ?)",
+            [(set_id, r["filename"], r["error"]) for r in rejected],
+        )
+    return set_id
+
+
+def find_set_by_fingerprint(conn, fingerprint: str):
+    return conn.execute(
+        "SELECT * FROM sample_sets WHERE fingerprint = ? ORDER BY created LIMIT 1", (fingerprint,)
+    ).fetchone()
+
+
+def get_set(conn, set_id: str):
+    return conn.execute("SELECT * FROM sample_sets WHERE id = ?", (set_id,)).fetchone()
+
+
+def list_sets(conn):
+    return conn.execute(
+        "SELECT s.*, (SELECT COUNT(*) FROM images i WHERE i.set_id = s.id) AS image_count"
+        " FROM sample_sets s ORDER BY s.created DESC, s.rowid DESC"
+    ).fetchall()
+
+
+def set_images(conn, set_id: str):
+    return conn.execute("SELECT * FROM images WHERE set_id = ? ORDER BY position", (set_id,)).fetchall()
+
+
+def set_rejected(conn, set_id: str):
+    return conn.execute("SELECT * FROM rejected WHERE set_id = ? ORDER BY id", (set_id,)).fetchall()
+
+
+def set_classes(conn, set_id: str) -> list[str]:
+    rows = conn.execute(
+        "SELECT class_name, MIN(position) AS first FROM images WHERE set_id = ? GROUP BY class_name ORDER BY first",
+        (set_id,),
+    ).fetchall()
+    return [r["class_name"] for r in rows]
+
+
+def update_image_classes(conn, set_id: str, classes: dict[int, str]) -> None:
+    with conn:
+        for image_id, class_name in classes.items():
+            conn.execute(
+                "UPDATE images SET class_name = ? WHERE id = ? AND set_id = ?", (class_name, image_id, set_id)
+            )
+        rows = conn.execute(
+            "SELECT filename, class_name, sha256 FROM images WHERE set_id = ?", (set_id,)
+        ).fetchall()
+        conn.execute(
+            "UPDATE sample_sets SET fingerprint = ? WHERE id = ?",
+            (set_fingerprint([(r[0], r[1], r[2]) for r in rows]), set_id),
+        )
+
+
+def delete_set(conn, root, set_id: str) -> bool:
+    """Delete a set, its sweeps and budgets, and every blob no other set still uses."""
+    shas = {r[0] for r in conn.execute("SELECT sha256 FROM images WHERE set_id = ?", (set_id,))}
+    with conn:
+        cur = conn.execute("DELETE FROM sample_sets WHERE id = ?", (set_id,))
+    if cur.rowcount == 0:
+        return False
+    for sha in shas:
+        if conn.execute("SELECT 1 FROM images WHERE sha256 = ? LIMIT 1", (sha,)).fetchone() is None:
+            _remove_blob_files(root, sha)
+    return True
+
+
+# --- sweeps -------------------------------------------------------------------------------------
+
+
+def create_sweep(conn, set_id: str, params: dict) -> str:
+    sweep_id = new_id()
+    with conn:
+        conn.execute(
+            "INSERT INTO sweeps (id, set_id, status, params, created) VALUES (?, ?, 'queued', ?, ?)",
+            (sweep_id, set_id, json.dumps(params), now_iso()),
+        )
+    return sweep_id
+
+
+def get_sweep(conn, sweep_id: str):
+    row = conn.execute("SELECT * FROM sweeps WHERE id = ?", (sweep_id,)).fetchone()
+    return None if row is None else sweep_dict(row)
+
+
+def sweep_dict(row) -> dict:
+    d = dict(row)
+    d["params"] = _loads(d["params"])
+    d["document"] = _loads(d["document"])
+    d["curves"] = _loads(d["curves"])
+    return d
+
+
+def sweeps_for_set(conn, set_id: str):
+    return conn.execute(
+        "SELECT id, status, done, total, created, finished FROM sweeps WHERE set_id = ? ORDER BY created DESC, rowid DESC",
+        (set_id,),
+    ).fetchall()
+
+
+def pending_sweeps(conn) -> list[str]:
+    rows = conn.execute(
+        "SELECT id FROM sweeps WHERE status IN ('queued', 'running') ORDER BY created, rowid"
+    ).fetchall()
+    return [r[0] for r in rows]
+
+
+def mark_running(conn, sweep_id: str) -> None:
+    with conn:
+        conn.execute(
+            "UPDATE sweeps SET status = 'running', started = ?, error = NULL WHERE id = ?", (time.time(), sweep_id)
+        )
+
+
+def update_progress(conn, sweep_id: str, done: int, total: int) -> None:
+    with conn:
+        conn.execute("UPDATE sweeps SET done = ?, total = ? WHERE id = ?", (int(done), int(total), sweep_id))
+
+
+def finish_sweep(conn, sweep_id: str, *, status: str, document=None, curves=None, error=None) -> None:
+    if status not in ("done", "failed", "cancelled"):
+        raise ValueError(f"finished status must be done, failed or cancelled, got {status!r}")
+    with conn:
+        conn.execute(
+            "UPDATE sweeps SET status = ?, document = ?, curves = ?, error = ?, finished = ? WHERE id = ?",
+            (
+                status,
+                None if document is None else json.dumps(document),
+                None if curves is None else json.dumps(curves),
+                error,
+                now_iso(),
+                sweep_id,
+            ),
+        )
+
+
+def request_cancel(conn, sweep_id: str) -> str | None:
+    """Flag a sweep for cancelling; a queued one is cancelled at once. Returns the new status."""
+    with conn:
+        row = conn.execute("SELECT status FROM sweeps WHERE id = ?", (sweep_id,)).fetchone()
+        if row is None:
+            return None
+        if row[0] == "queued":
+            conn.execute(
+                "UPDATE sweeps SET status = 'cancelled', cancel_requested = 1, finished = ? WHERE id = ?",
+                (now_iso(), sweep_id),
+            )
+            return "cancelled"
+        if row[0] == "running":
+            conn.execute("UPDATE sweeps SET cancel_requested = 1 WHERE id = ?", (sweep_id,))
+        return row[0]
+
+
+def save_decision(conn, sweep_id: str, params: dict, document: dict) -> None:
+    with conn:
+        conn.execute(
+            "UPDATE sweeps SET params = ?, document = ? WHERE id = ?",
+            (json.dumps(params), json.dumps(document), sweep_id),
+        )
+
+
+class SqliteResultCache:
+    """``dct.pipeline.ResultCache`` over the ``result_cache`` table.
+
+    Uses its own connection, guarded by a lock, so the pipeline may call it from any thread.
+    """
+
+    def __init__(self, database):
+        self._conn = connect(database, check_same_thread=False)
+        self._lock = threading.Lock()
+
+    def get(self, fingerprint: str):
+        with self._lock:
+            row = self._conn.execute(
+                "SELECT result FROM result_cache WHERE fingerprint = ?", (fingerprint,)
+            ).fetchone()
+        return None if row is None else json.loads(row[0])
+
+    def put(self, fingerprint: str, result: dict) -> None:
+        text = json.dumps(result)
+        with self._lock, self._conn:
+            self._conn.execute(
+                "INSERT OR REPLACE INTO result_cache (fingerprint, result, created) VALUES (?, ?, ?)",
+                (fingerprint, text, now_iso()),
+            )
+
+    def close(self) -> None:
+        with self._lock:
+            self._conn.close()
+
+
+# --- budgets --------------------------------------------------------------------------------------
+
+
+def create_budget(conn, sweep_id: str) -> str:
+    token = new_token()
+    with conn:
+        conn.execute(
+            "INSERT INTO budgets (edit_token, sweep_id, created) VALUES (?, ?, ?)", (token, sweep_id, now_iso())
+        )
+    return token
+
+
+def add_snapshot(conn, edit_token: str, params: dict, document: dict) -> str:
+    token = new_token()
+    with conn:
+        seq = conn.execute(
+            "SELECT COALESCE(MAX(seq), 0) + 1 FROM snapshots WHERE edit_token = ?", (edit_token,)
+        ).fetchone()[0]
+        conn.execute(
+            "INSERT INTO snapshots (view_token, edit_token, seq, params, document, created) VALUES (?, ?, ?, ?, ?, ?)",
+            (token, edit_token, seq, json.dumps(params), json.dumps(document), now_iso()),
+        )
+    return token
+
+
+def _snapshot_dict(row) -> dict:
+    d = dict(row)
+    d["params"] = json.loads(d["params"])
+    d["document"] = json.loads(d["document"])
+    return d
+
+
+def resolve_token(conn, token: str):
+    """Find what a budget token opens.
+
+    Returns ``(role, snapshot, budget)`` with role ``"view"`` (that snapshot) or ``"edit"`` (the owner's
+    latest snapshot), or ``None`` for an unknown token.
+    """
+    row = conn.execute("SELECT * FROM snapshots WHERE view_token = ?", (token,)).fetchone()
+    if row is not None:
+        budget = conn.execute("SELECT * FROM budgets WHERE edit_token = ?", (row["edit_token"],)).fetchone()
+        return "view", _snapshot_dict(row), dict(budget)
+    budget = conn.execute("SELECT * FROM budgets WHERE edit_token = ?", (token,)).fetchone()
+    if budget is None:
+        return None
+    latest = conn.execute(
+        "SELECT * FROM snapshots WHERE edit_token = ? ORDER BY seq DESC LIMIT 1", (token,)
+    ).fetchone()
+    return "edit", _snapshot_dict(latest), dict(budget)
+
+
+def list_snapshots(conn, edit_token: str):
+    return conn.execute(
+        "SELECT view_token, seq, created, (SELECT COUNT(*) FROM signoffs s WHERE s.view_token = snapshots.view_token)"
+        " AS signoff_count FROM snapshots WHERE edit_token = ? ORDER BY seq DESC",
+        (edit_token,),
+    ).fetchall()
+
+
+def add_signoff(conn, view_token: str, *, class_name: str, name: str, verdict: str, comment: str) -> dict:
+    created = now_iso()
+    with conn:
+        cur = conn.execute(
+            "INSERT INTO signoffs (view_token, class_name, name, verdict, comment, created) VALUES (?, ?, ?, ?, ?, ?)",
+            (view_token, class_name, name, verdict, comment, created),
+        )
+    return {"id": cur.lastrowid, "class": class_name, "name": name, "verdict": verdict, "comment": comment,
+            "created": created}
+
+
+def signoffs_for(conn, view_token: str) -> list[dict]:
+    rows = conn.execute(
+        "SELECT id, class_name, name, verdict, comment, created FROM signoffs WHERE view_token = ? ORDER BY id",
+        (view_token,),
+    ).fetchall()
+    return [
+        {"id": r["id"], "class": r["class_name"], "name": r["name"], "verdict": r["verdict"],
+         "comment": r["comment"], "created": r["created"]}
+        for r in rows
+    ]

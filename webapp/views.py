@@ -1,0 +1,80 @@
+"""Shared view helpers: htmx detection, error pages vs JSON errors, number formatting filters."""
+
+from __future__ import annotations
+
+import json
+import logging
+
+from flask import jsonify, render_template, request
+from werkzeug.exceptions import HTTPException
+
+log = logging.getLogger(__name__)
+HTMX_FILE = "htmx-2.0.11.min.js"
+
+
+def is_htmx() -> bool:
+    return request.headers.get("HX-Request") == "true"
+
+
+def wants_json() -> bool:
+    return request.path.startswith("/api/")
+
+
+def json_error(message: str, status: int, **extra):
+    body = {"error": message}
+    body.update(extra)
+    return jsonify(body), status
+
+
+def kb(value) -> str:
+    if value is None:
+        return "–"
+    return f"{value / 1000:,.1f}"
+
+
+def pct(value, digits: int = 0) -> str:
+    if value is None:
+        return "–"
+    return f"{value * 100:.{digits}f}%"
+
+
+def ssim(value) -> str:
+    if value is None:
+        return "–"
+    return f"{value:.4f}"
+
+
+def setting_label(s) -> str:
+    if not s:
+        return "none"
+    return f"q{s['quality']} · {s['subsampling']} · k{s['cutoff']}"
+
+
+def width_label(w) -> str:
+    return "as uploaded" if w is None else f"{w} px"
+
+
+def init_app(app) -> None:
+    app.jinja_env.filters.update(kb=kb, pct=pct, ssim=ssim, setting=setting_label, width=width_label,
+                                  fromjson=json.loads)
+    app.jinja_env.globals.update(htmx_file=HTMX_FILE, is_htmx=is_htmx)
+
+    @app.errorhandler(HTTPException)
+    def http_error(exc: HTTPException):
+        message = exc.description or exc.name
+        if exc.code == 413:
+            limit = app.config.get("MAX_CONTENT_LENGTH")
+            message = f"upload too large: the limit is {limit // (1024 * 1024)} MB per request" if limit else message
+        if wants_json():
+            return json_error(message, exc.code or 400)
+        return render_template("error.html", code=exc.code, title=exc.name, message=message), exc.code
+
+    @app.errorhandler(Exception)
+    def unexpected(exc: Exception):
+        if isinstance(exc, HTTPException):
+            return http_error(exc)
+        log.exception("unhandled error on %s", request.path)
+        if wants_json():
+            return json_error(f"internal error: {type(exc).__name__}", 500)
+        return render_template("error.html", code=500, title="Something broke",
+                               message="The server hit an unexpected error; the log has details."), 500
