@@ -276,16 +276,35 @@ def frontier_svg(class_entry: dict, *, width: int = 560, height: int = 300) -> s
     if target is not None:
         ys.append(target)
 
-    left, right, top, bottom = 62, 20, 36, 46
-    plot_w, plot_h = width - left - right, height - top - bottom
-
-    out: list[str] = []
     class_bits = [name]
     if _finite(class_entry.get("width")) is not None:
         class_bits.append(f"{_fmt(float(class_entry['width']))} px wide")
     if per_image:
         n = int(count)
         class_bits.append(f"{n} image" + ("" if n == 1 else "s"))
+
+    # ---- header: class name (shortened for display only; title and aria-label keep it whole) and a
+    # legend beside it, or on a second row when the name needs the room.
+    left, right, top, bottom = 62, 20, 36, 46
+    kinds = [k for k, shown in (("frontier", frontier), ("chosen", chosen is not None),
+                                ("current", current is not None or current_kb is not None)) if shown]
+    beside = int((width - left - right - _legend_width(kinds) - 16) / 7.4)
+    full_row = int((width - left - right) / 7.4)
+    header = " · ".join(class_bits)
+    legend_y = 20
+    if len(header) > beside:
+        if len(name) <= beside:
+            header = name  # drop the details first
+        elif kinds:
+            legend_y, top = 38, 52
+            if len(header) > full_row:
+                header = name
+    room = beside if legend_y == 20 else full_row
+    if len(header) > room:
+        header = header[: max(room - 1, 1)] + "\u2026"
+    plot_w, plot_h = width - left - right, height - top - bottom
+
+    out: list[str] = []
     summary = [f"Size against SSIM for class {' · '.join(class_bits)}."]
     if chosen is not None:
         summary.append(f"Chosen {chosen.label}: {_format_kb(chosen.kb)}, SSIM {_format_ssim(chosen.ssim)}.")
@@ -308,19 +327,10 @@ def frontier_svg(class_entry: dict, *, width: int = 560, height: int = 300) -> s
     out.append(f"<desc>{_esc(aria)}</desc>")
     out.append(f'<rect x="0" y="0" width="{width}" height="{height}" fill="#ffffff"/>')
 
-    # ---- header: class name (truncated for display; the title keeps it whole) and a legend
-    kinds = [k for k, shown in (("frontier", frontier), ("chosen", chosen is not None),
-                                ("current", current is not None or current_kb is not None)) if shown]
-    room = int((width - left - right - _legend_width(kinds) - 16) / 7.4)
-    header = " · ".join(class_bits)
-    if len(header) > room:
-        header = name  # drop the details first; the title and aria-label keep them
-    if len(header) > room:
-        header = header[: max(room - 1, 1)] + "\u2026"
     out.append(
         f'<text class="fc-heading" x="{left}" y="20" font-size="13" font-weight="600">{_esc(header)}</text>'
     )
-    out.append(_legend(width - right, 20, kinds))
+    out.append(_legend(width - right, legend_y, kinds))
 
     if not xs or not ys:
         out.append(
@@ -333,7 +343,7 @@ def frontier_svg(class_entry: dict, *, width: int = 560, height: int = 300) -> s
         out.append("</svg>")
         return "\n".join(out)
 
-    x_ticks = _axis_ticks(min(xs), max(xs), count=max(3, min(8, plot_w // 75)), floor_at_zero=True)
+    x_ticks = _axis_ticks(min(xs), max(xs), count=max(3, min(8, plot_w // 60)), floor_at_zero=True)
     y_ticks = _axis_ticks(min(ys), max(ys), count=max(3, min(7, plot_h // 40)), ssim=True)
     x0, x1 = x_ticks[0], x_ticks[-1]
     y0, y1 = y_ticks[0], y_ticks[-1]
