@@ -153,7 +153,9 @@ def sweep_request(payload, class_names: list[str]) -> dict:
         raise ValueError(f"unknown key {unknown[0]!r} (allowed: {', '.join(sorted(allowed))})")
     target = fraction(payload.get("target_ssim", DEFAULT_TARGET_SSIM), "target_ssim")
     coverage = fraction(payload.get("coverage", DEFAULT_COVERAGE), "coverage")
-    raw_classes = payload.get("classes") or {}
+    raw_classes = payload.get("classes")
+    if raw_classes is None:
+        raw_classes = {}
     if not isinstance(raw_classes, dict):
         raise ValueError(f"classes must be an object keyed by class name, got {raw_classes!r}")
     for name in raw_classes:
@@ -177,7 +179,9 @@ def target_changes(payload, params: dict) -> dict:
     unknown = sorted(set(payload) - {"classes", "current"})
     if unknown:
         raise ValueError(f"unknown key {unknown[0]!r} (allowed: classes, current)")
-    raw_classes = payload.get("classes") or {}
+    raw_classes = payload.get("classes")
+    if raw_classes is None:
+        raw_classes = {}
     if not isinstance(raw_classes, dict):
         raise ValueError(f"classes must be an object keyed by class name, got {raw_classes!r}")
     names = list(params["classes"])
