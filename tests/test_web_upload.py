@@ -240,7 +240,7 @@ def test_editing_a_class_returns_the_targets_fragment_for_htmx(app, client):
     "value, message",
     [
         ("", "class must be a non-empty name, got ''"),
-        ("a/b", "class must be at most 80 characters without '/', got 'a/b'"),
+        ("a/b", "class must be at most 80 characters without '/' or control characters, got 'a/b'"),
     ],
 )
 def test_bad_class_name_is_a_400_with_message(app, client, value, message):

@@ -17,7 +17,8 @@ UNCLASSIFIED = "unclassified"
 
 def clean_filename(raw: str | None) -> str:
     """Normalise an uploaded relative path: forward slashes, no leading ``/`` or ``./``, no ``..``."""
-    name = (raw or "").replace("\\", "/").strip()
+    name = "".join(c for c in (raw or "") if ord(c) >= 32 and ord(c) != 127)  # no control characters
+    name = name.replace("\\", "/").strip()
     parts = [p for p in name.split("/") if p not in ("", ".", "..")]
     return "/".join(parts)
 

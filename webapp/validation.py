@@ -39,6 +39,22 @@ def fraction(value, name: str, *, allow_blank: bool = False):
     return number
 
 
+def floor(value, name: str):
+    """An optional SSIM floor in [0, 1]; blank/None = the engine's default, 0 turns the check off."""
+    if _blank(value):
+        return None
+    msg = f"{name} must be a number from 0 to 1, or blank for the default, got {value!r}"
+    if isinstance(value, bool):
+        raise ValueError(msg)
+    try:
+        number = float(value.strip()) if isinstance(value, str) else float(value)
+    except (TypeError, ValueError):
+        raise ValueError(msg) from None
+    if not math.isfinite(number) or not 0 <= number <= 1:
+        raise ValueError(msg)
+    return number
+
+
 def widths(value, name: str = "width") -> list:
     """Delivery widths: blank/None = as uploaded; an int, a list of ints, or text like ``"480, 960"``."""
     if _blank(value):
@@ -130,9 +146,10 @@ def class_entry(name: str, raw, *, defaults: dict) -> dict:
         spec["widths"] = widths(raw["width"], f"{where}.width")
     if "widths" in raw:
         spec["widths"] = widths(raw["widths"], f"{where}.widths")
-    for key in ("local_floor", "chroma_floor"):
-        if key in raw:
-            spec[key] = fraction(raw[key], f"{where}.{key}", allow_blank=True)
+    if "local_floor" in raw:
+        spec["local_floor"] = floor(raw["local_floor"], f"{where}.local_floor")
+    if "chroma_floor" in raw:
+        spec["chroma_floor"] = fraction(raw["chroma_floor"], f"{where}.chroma_floor", allow_blank=True)
     return spec
 
 
@@ -200,8 +217,8 @@ def class_name(value) -> str:
     if not isinstance(value, str) or not value.strip():
         raise ValueError(f"class must be a non-empty name, got {value!r}")
     name = value.strip()
-    if len(name) > MAX_NAME or "/" in name:
-        raise ValueError(f"class must be at most {MAX_NAME} characters without '/', got {value!r}")
+    if len(name) > MAX_NAME or "/" in name or any(ord(c) < 32 or ord(c) == 127 for c in name):
+        raise ValueError(f"class must be at most {MAX_NAME} characters without '/' or control characters, got {value!r}")
     return name
 
 
