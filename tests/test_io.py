@@ -622,6 +622,19 @@ def test_unreadable_file_is_refused(tmp_path):
         path.chmod(stat.S_IRUSR | stat.S_IWUSR)
 
 
+def test_permission_denied_is_refused_even_as_root(tmp_path, monkeypatch):
+    # Root ignores permission bits, so make opening fail the way the kernel would for others.
+    path = tmp_path / "locked.png"
+    Image.new("RGB", (4, 4)).save(path)
+
+    def denied(*args, **kwargs):
+        raise PermissionError(13, "Permission denied", str(path))
+
+    monkeypatch.setattr("builtins.open", denied)
+    with pytest.raises(ImageRejected, match=r"^unreadable file: permission denied$"):
+        decode_image(path)
+
+
 def test_rejection_is_a_value_error_with_no_chained_traceback():
     with pytest.raises(ValueError) as info:
         decode_image(b"\x00\x01garbage")
