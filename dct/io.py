@@ -574,16 +574,21 @@ def _lab_to_srgb(img, notes: list[str]):
 
 
 def _composite(pixels: np.ndarray, alpha: np.ndarray, background) -> np.ndarray:
-    """Straight-alpha "over" onto an opaque background, rounded to nearest."""
-    a = alpha.astype(np.uint32)
-    if pixels.ndim == 2:
-        if len(set(background)) == 1:
-            bg = np.uint32(background[0])
-            return ((pixels * a + bg * (255 - a) + 127) // 255).astype(np.uint8)
+    """Straight-alpha "over" onto an opaque background, rounded to nearest, in uint16."""
+    if pixels.ndim == 2 and len(set(background)) != 1:
         pixels = np.repeat(pixels[:, :, None], 3, axis=2)  # a coloured background makes it colour
-    bg = np.asarray(background, dtype=np.uint32)
-    a = a[:, :, None]
-    return ((pixels * a + bg * (255 - a) + 127) // 255).astype(np.uint8)
+    if pixels.ndim == 2:
+        a = alpha.astype(np.uint16)
+        bg = np.uint16(background[0])
+    else:
+        a = alpha.astype(np.uint16)[:, :, None]
+        bg = np.asarray(background, dtype=np.uint16)
+    x = pixels * a  # at most 255 * 255, so uint16 holds every step below
+    x += bg * (255 - a)
+    # round(x / 255) without a division: exact for 0 <= x <= 255 * 255 (checked for all of them).
+    x += 128
+    x += x >> 8
+    return (x >> 8).astype(np.uint8)
 
 
 # --------------------------------------------------------------------------------------------------

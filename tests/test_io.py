@@ -459,6 +459,16 @@ def test_rgba_is_composited_over_the_background(bg):
     assert d.warnings == ["alpha composited over #%02x%02x%02x" % bg]
 
 
+def test_compositing_rounds_every_case_to_nearest():
+    # Every (colour, alpha) pair over black and over white: round(c * a / 255 + bg * (1 - a / 255)).
+    c, a = np.meshgrid(np.arange(256), np.arange(256), indexing="ij")
+    rgba = np.stack([c, c, c, a], axis=2).astype(np.uint8)
+    for bg in ((0, 0, 0), (255, 255, 255), (7, 130, 250)):
+        d = decode_image(save(Image.fromarray(rgba), "PNG"), background=bg)
+        exact = over(rgba[..., :3].astype(float), rgba[..., 3], bg)
+        np.testing.assert_array_equal(d.pixels, np.floor(exact + 0.5))
+
+
 def test_opaque_alpha_is_dropped_without_a_warning():
     rgba = RNG.integers(0, 256, (5, 5, 4), dtype=np.uint8)
     rgba[..., 3] = 255
