@@ -61,7 +61,6 @@ _SIGNATURES = (
     (b"GIF89a", "GIF"),
     (b"II*\x00", "TIFF"),
     (b"MM\x00*", "TIFF"),
-    (b"BM", "BMP"),
 )
 
 _BOMB_MESSAGE = re.compile(r"\((\d+) pixels\)")
@@ -260,6 +259,8 @@ class _open_source:
             raise
         except OSError as exc:
             raise ImageRejected(f"unreadable file: {_os_reason(exc)}") from None
+        except ValueError:  # e.g. an embedded NUL in the path
+            raise ImageRejected("unreadable file: invalid path") from None
         if os.fstat(self.fp.fileno()).st_size == 0:
             self.fp.close()
             raise ImageRejected("empty file (0 bytes)")
@@ -525,7 +526,8 @@ def _gray_lut(icc: bytes) -> np.ndarray:
     pass over the 256 possible values, then a lookup, is both exact and fast.
     """
     src = ImageCms.ImageCmsProfile(io.BytesIO(icc))
-    transform = ImageCms.buildTransform(src, _srgb_profile(), "L", "RGB", flags=ImageCms.Flags.NOOPTIMIZE)
+    no_optimize = ImageCms.Flags.NOOPTIMIZE if hasattr(ImageCms, "Flags") else 0x0100  # Pillow < 10.3
+    transform = ImageCms.buildTransform(src, _srgb_profile(), "L", "RGB", flags=no_optimize)
     ramp = Image.fromarray(np.arange(256, dtype=np.uint8)[None, :])
     rgb = np.asarray(ImageCms.applyTransform(ramp, transform), dtype=np.float64)[0]
     return np.rint(rgb.mean(axis=1)).astype(np.uint8)

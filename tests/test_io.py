@@ -645,6 +645,41 @@ def test_permission_denied_is_refused_even_as_root(tmp_path, monkeypatch):
         decode_image(path)
 
 
+def test_damaged_files_only_ever_raise_image_rejected():
+    # Truncations and byte flips of every common format: either a decode or a clear rejection,
+    # never an OSError / SyntaxError / struct.error escaping.
+    rng = np.random.default_rng(7)
+    img = Image.fromarray(rng.integers(0, 256, (24, 32, 3), dtype=np.uint8))
+    flipped = img.transpose(Image.Transpose.FLIP_LEFT_RIGHT)
+    sources = [
+        save(img, "JPEG"), save(img, "JPEG", progressive=True), save(img, "PNG"),
+        save(img, "PNG", save_all=True, append_images=[flipped]),
+        save(img.convert("P"), "GIF", save_all=True, append_images=[flipped.convert("P")]),
+        save(img, "WEBP"), save(img, "TIFF"), save(img, "TIFF", compression="tiff_deflate"), save(img, "BMP"),
+    ]
+    outcomes = set()
+    for data in sources:
+        variants = [data[:cut] for cut in rng.integers(1, len(data), 15)]
+        for _ in range(25):
+            damaged = np.frombuffer(data, dtype=np.uint8).copy()
+            damaged[rng.integers(0, len(data), 3)] = rng.integers(0, 256, 3)
+            variants.append(damaged.tobytes())
+        for v in variants:
+            try:
+                d = decode_image(v)
+                assert d.pixels.dtype == np.uint8 and d.pixels.ndim in (2, 3)
+                outcomes.add("decoded")
+            except ImageRejected as exc:
+                assert "\n" not in str(exc) and len(str(exc)) < 100
+                outcomes.add("rejected")
+    assert outcomes == {"decoded", "rejected"}
+
+
+def test_path_with_nul_byte_is_refused():
+    with pytest.raises(ImageRejected, match="^unreadable file: invalid path$"):
+        decode_image("bad\x00name.jpg")
+
+
 def test_rejection_is_a_value_error_with_no_chained_traceback():
     with pytest.raises(ValueError) as info:
         decode_image(b"\x00\x01garbage")
