@@ -51,12 +51,17 @@ def _image(db, document, set_id, n):
     return image, row, entry, setting, fallback
 
 
+def crop_size(shape) -> int:
+    """Side of the worst-spot windows: 96 px, smaller on small images so three distinct spots fit."""
+    return int(min(96, max(16, min(shape[0], shape[1]) // 2)))
+
+
 def _page(db, document, set_id, n, url):
     image, row, entry, setting, fallback = _image(db, document, set_id, n)
     root = store.data_dir()
     width = image.get("width")
     shape = imaging.pixels(root, row["sha256"], width).shape
-    crops = imaging.worst_crops(root, row["sha256"], width, setting)
+    crops = imaging.worst_crops(root, row["sha256"], width, setting, size=crop_size(shape))
     count = len(document.get("images", []))
     return render_template(
         "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=count,

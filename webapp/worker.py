@@ -115,7 +115,11 @@ class SweepWorker:
         from dct.pipeline import run_sweep
         from dct.runner import make_runner
 
+        from dct.sampleset import Rejection
+
         jobs = build_jobs(conn, self.root, sweep["set_id"], sweep["params"])
+        # Files refused at upload are listed in the document, as the CLI lists files refused on discovery.
+        rejected = [Rejection(path=r["filename"], error=r["error"]) for r in store.set_rejected(conn, sweep["set_id"])]
         classes = validation.class_specs(sweep["params"])
         current = validation.current_setting(sweep["params"])
 
@@ -125,13 +129,25 @@ class SweepWorker:
         cache = store.SqliteResultCache(self.database)
         runner = make_runner(workers=self.workers)
         try:
-            kwargs = dict(current=current, runner=runner, progress=progress, cancel=event, cache=cache)
+            kwargs = dict(current=current, runner=runner, progress=progress, cancel=event, cache=cache,
+                          rejected=rejected)
             if self.grid is not None:
-                kwargs["grid"] = self.grid
+                kwargs["grid"] = make_grid(self.grid)
             return run_sweep(jobs, classes, **kwargs)
         finally:
             runner.close()
             cache.close()
+
+
+def make_grid(value):
+    """``SWEEP_GRID`` as a ``dct.grid.Grid``: a Grid, or a dict of its fields (tests use a small one)."""
+    from dct.grid import Grid
+
+    if isinstance(value, Grid):
+        return value
+    if isinstance(value, dict):
+        return Grid(**{k: tuple(v) if isinstance(v, (list, tuple)) else v for k, v in value.items()})
+    raise ValueError(f"SWEEP_GRID must be a dct.grid.Grid or a dict of its fields, got {value!r}")
 
 
 def build_jobs(conn, root, set_id: str, params: dict) -> list:
