@@ -1,0 +1,189 @@
+"""The class decision: the cheapest setting that enough of a class's images accept. Pure, no I/O.
+
+For one class at one delivery width, an image *accepts* a setting when
+
+* its luma SSIM reaches ``target_ssim``;
+* its Cb and Cr SSIM both reach ``chroma_floor`` (colour images only): luma SSIM cannot see the
+  colour damage of chroma subsampling, so subsampling is chosen only where colour survives it;
+* its local SSIM (a low percentile of 16x16-tile mean SSIM, ``SweepPoint.ssim_local``) reaches
+  ``local_floor``, unless the floor is 0: a mean is blind to damage in small regions such as text.
+
+The chosen setting has the smallest total estimated bytes over the class among settings that at
+least ``coverage`` of its images accept; ties go to the higher worst-image SSIM, then the higher
+quality. If no setting qualifies, the decision says so (``setting is None``) instead of guessing.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .tables import Setting
+
+DEFAULT_TARGET_SSIM = 0.95
+DEFAULT_COVERAGE = 0.9
+# Calibrated on the demo set's screenshots and on photos (README, "Choosing the local floor").
+DEFAULT_LOCAL_FLOOR = 0.80
+_EPS = 1e-12
+
+
+@dataclass(frozen=True)
+class Targets:
+    target_ssim: float = DEFAULT_TARGET_SSIM
+    coverage: float = DEFAULT_COVERAGE
+    chroma_floor: float | None = None  # None: same as target_ssim
+    local_floor: float = DEFAULT_LOCAL_FLOOR  # 0 turns the local check off
+
+    def __post_init__(self):
+        for name in ("target_ssim", "coverage"):
+            v = getattr(self, name)
+            if not isinstance(v, (int, float)) or not 0 < v <= 1:
+                raise ValueError(f"{name} must be a number in (0, 1], got {v!r}")
+        for name in ("chroma_floor", "local_floor"):
+            v = getattr(self, name)
+            if v is not None and (not isinstance(v, (int, float)) or not 0 <= v <= 1):
+                raise ValueError(f"{name} must be a number in [0, 1], got {v!r}")
+
+    @property
+    def effective_chroma_floor(self) -> float:
+        return self.target_ssim if self.chroma_floor is None else self.chroma_floor
+
+
+@dataclass(frozen=True)
+class Measure:
+    """One image at one setting, the numbers the decision reads."""
+
+    estimated_bytes: int
+    ssim: float
+    ssim_cb: float | None
+    ssim_cr: float | None
+    ssim_local: float
+
+
+def accepts(m: Measure, t: Targets) -> bool:
+    if m.ssim + _EPS < t.target_ssim:
+        return False
+    if m.ssim_cb is not None:
+        floor = t.effective_chroma_floor
+        if m.ssim_cb + _EPS < floor or m.ssim_cr + _EPS < floor:
+            return False
+    if t.local_floor > 0 and m.ssim_local + _EPS < t.local_floor:
+        return False
+    return True
+
+
+def slack(m: Measure, t: Targets) -> float:
+    """How far an image is from accepting (>= 0: it accepts); the smallest margin over the checks."""
+    margins = [m.ssim - t.target_ssim]
+    if m.ssim_cb is not None:
+        margins += [m.ssim_cb - t.effective_chroma_floor, m.ssim_cr - t.effective_chroma_floor]
+    if t.local_floor > 0:
+        margins.append(m.ssim_local - t.local_floor)
+    return min(margins)
+
+
+@dataclass
+class SettingSummary:
+    """A class's totals at one setting."""
+
+    setting: Setting
+    total_bytes: int
+    share_accepting: float
+    ssim_min: float
+    ssim_at_coverage: float  # the luma SSIM that a `coverage` share of images reach
+    class_slack: float  # the coverage-quantile of per-image slack: >= 0 iff the setting qualifies
+
+    @property
+    def qualifies(self) -> bool:
+        return self.class_slack >= -_EPS
+
+
+@dataclass
+class Decision:
+    setting: Setting | None
+    summary: SettingSummary | None
+    current: SettingSummary | None
+    frontier: list[SettingSummary]
+    best_share: SettingSummary | None  # the setting closest to qualifying, when none does
+    image_count: int
+    per_image: dict[str, Measure] = field(default_factory=dict)  # at the chosen setting
+
+    @property
+    def savings_vs_current(self) -> float | None:
+        if self.summary is None or self.current is None or self.current.total_bytes == 0:
+            return None
+        return 1.0 - self.summary.total_bytes / self.current.total_bytes
+
+
+def _quantile_at_coverage(values: np.ndarray, coverage: float) -> float:
+    """The largest v such that at least `coverage` of values are >= v."""
+    ordered = np.sort(values)[::-1]
+    need = max(1, int(np.ceil(coverage * len(ordered) - 1e-9)))
+    return float(ordered[need - 1])
+
+
+def summarize(setting: Setting, measures: list[Measure], t: Targets) -> SettingSummary:
+    ssims = np.array([m.ssim for m in measures])
+    slacks = np.array([slack(m, t) for m in measures])
+    return SettingSummary(
+        setting=setting,
+        total_bytes=int(sum(m.estimated_bytes for m in measures)),
+        share_accepting=float(np.mean([accepts(m, t) for m in measures])),
+        ssim_min=float(ssims.min()),
+        ssim_at_coverage=_quantile_at_coverage(ssims, t.coverage),
+        class_slack=_quantile_at_coverage(slacks, t.coverage),
+    )
+
+
+def pareto_frontier(summaries: list[SettingSummary]) -> list[SettingSummary]:
+    """Settings not beaten on both bytes (fewer) and coverage-quantile SSIM (higher), by bytes."""
+    ordered = sorted(summaries, key=lambda s: (s.total_bytes, -s.ssim_at_coverage))
+    frontier, best = [], -np.inf
+    for s in ordered:
+        if s.ssim_at_coverage > best:
+            frontier.append(s)
+            best = s.ssim_at_coverage
+    return frontier
+
+
+def decide_class(
+    table: dict[str, dict[Setting, Measure]],
+    targets: Targets,
+    *,
+    current: Setting | None = None,
+) -> Decision:
+    """Choose a class's setting from its images' curves.
+
+    Parameters
+    ----------
+    table : {image key: {Setting: Measure}}
+        Every image of the class (at one width). Only settings present for every image are candidates.
+    targets : Targets
+    current : Setting, optional
+        The setting in use today, for the savings figure.
+    """
+    if not table:
+        raise ValueError("a class needs at least one image to decide on")
+    keys = sorted(table)
+    common = set.intersection(*(set(table[k]) for k in keys))
+    summaries = [summarize(s, [table[k][s] for k in keys], targets) for s in sorted(common)]
+    qualifying = [s for s in summaries if s.qualifies]
+    chosen = None
+    if qualifying:
+        chosen = min(qualifying, key=lambda s: (s.total_bytes, -s.ssim_min, -s.setting.quality, s.setting))
+    best_share = None
+    if chosen is None and summaries:
+        best_share = max(summaries, key=lambda s: (s.class_slack, -s.total_bytes))
+    current_summary = None
+    if current is not None and current in common:
+        current_summary = next(s for s in summaries if s.setting == current)
+    return Decision(
+        setting=chosen.setting if chosen else None,
+        summary=chosen,
+        current=current_summary,
+        frontier=pareto_frontier(summaries),
+        best_share=best_share,
+        image_count=len(keys),
+        per_image={k: table[k][chosen.setting] for k in keys} if chosen else {},
+    )

@@ -1,0 +1,241 @@
+"""The ``eightfold`` console script: ``sweep`` on the command line, ``serve`` and ``demo`` for the app.
+
+Exit codes of ``eightfold sweep``: 0 when every class has a setting; 3 when some class has no
+setting in the grid that meets its targets (the document still lists it, with a message); 4 when no
+file of the sample set could be used; 2 for bad options (click's usage errors); 1 otherwise.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sys
+import threading
+from dataclasses import replace
+from pathlib import Path
+
+import click
+
+from . import budget, report
+from .cache import DirectoryCache, default_cache_dir, fingerprint
+from .grid import DEFAULT_CURRENT, DEFAULT_GRID, Grid
+from .tables import SUBSAMPLINGS, Setting
+
+EXIT_UNMET = 3
+EXIT_NOTHING_USABLE = 4
+
+
+def _int_list(text: str, name: str) -> tuple[int, ...]:
+    """"20-95" or "20-95/5" or "64,40,20" -> ints."""
+    out: list[int] = []
+    try:
+        for part in text.split(","):
+            part = part.strip()
+            if "-" in part:
+                span, _, step = part.partition("/")
+                lo, hi = (int(v) for v in span.split("-"))
+                out.extend(range(lo, hi + 1, int(step or 1)))
+            elif part:
+                out.append(int(part))
+    except ValueError:
+        raise click.BadParameter(f"expected numbers like '20-95' or '64,40,20', got {text!r}", param_hint=name)
+    if not out:
+        raise click.BadParameter(f"no values in {text!r}", param_hint=name)
+    return tuple(out)
+
+
+def _unit_interval(ctx, param, value):
+    if value is not None and not 0 < value <= 1:
+        raise click.BadParameter(f"must be in (0, 1], got {value}")
+    return value
+
+
+def _floor(ctx, param, value):
+    if value is not None and not 0 <= value <= 1:
+        raise click.BadParameter(f"must be in [0, 1], got {value}")
+    return value
+
+
+@click.group()
+@click.version_option(package_name="eightfold")
+def main():
+    """Eightfold: choose per-class JPEG quality budgets from a sample set of a site's images."""
+
+
+@main.command()
+@click.argument("sample_dir", type=click.Path(exists=True, file_okay=False, path_type=Path))
+@click.option("--target-ssim", type=float, callback=_unit_interval, help=f"Luma SSIM each image must reach [default {budget.DEFAULT_TARGET_SSIM}].")
+@click.option("--coverage", type=float, callback=_unit_interval, help=f"Share of a class's images that must reach it [default {budget.DEFAULT_COVERAGE}].")
+@click.option("--chroma-floor", type=float, callback=_floor, help="Cb and Cr SSIM floor [default: the target].")
+@click.option("--local-floor", type=float, callback=_floor, help=f"Floor for the worst 5% of 16x16-tile SSIM; 0 turns it off [default {budget.DEFAULT_LOCAL_FLOOR}].")
+@click.option("--current-quality", type=click.IntRange(1, 100), default=DEFAULT_CURRENT.quality, show_default=True, help="Quality of the setting in use today.")
+@click.option("--current-subsampling", type=click.Choice(SUBSAMPLINGS), default=DEFAULT_CURRENT.subsampling, show_default=True)
+@click.option("--classes", "classes_file", type=click.Path(exists=True, dir_okay=False, path_type=Path), help="classes.toml (default: SAMPLE_DIR/classes.toml if present).")
+@click.option("--json", "json_out", type=click.Path(dir_okay=False, path_type=Path), help="Write the result document here ('-' for stdout).")
+@click.option("--csv", "csv_out", type=click.Path(dir_okay=False, path_type=Path), help="Write one CSV row per class here.")
+@click.option("--verify", is_flag=True, help="Re-encode every image at its chosen setting with Pillow and report actual bytes and SSIM.")
+@click.option("--workers", type=click.IntRange(1, None), help="Local worker processes [default: all cores].")
+@click.option("--scheduler", help="Run on a dask.distributed scheduler, e.g. tcp://HOST:8786.")
+@click.option("--qualities", default="20-95", show_default=True, help="Quality grid.")
+@click.option("--cutoffs", default=",".join(map(str, DEFAULT_GRID.cutoffs)), show_default=True, help="Zigzag cutoffs.")
+@click.option("--subsamplings", default=",".join(DEFAULT_GRID.subsamplings), show_default=True, help="Subsampling modes.")
+@click.option("--no-refine", is_flag=True, help="Evaluate only the coarse grid (every 5th quality).")
+@click.option("--cache-dir", type=click.Path(file_okay=False, path_type=Path), help=f"Where finished per-image results are kept [default {default_cache_dir()}].")
+@click.option("--no-cache", is_flag=True, help="Do not read or write the result cache.")
+@click.option("--quiet", is_flag=True, help="No progress bar.")
+def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_quality, current_subsampling,
+          classes_file, json_out, csv_out, verify, workers, scheduler, qualities, cutoffs, subsamplings,
+          no_refine, cache_dir, no_cache, quiet):
+    """Sweep SAMPLE_DIR (one sub-folder per class) and print each class's cheapest setting."""
+    from tqdm import tqdm
+
+    from .pipeline import run_sweep
+    from .runner import RunnerError, make_runner
+    from .sampleset import ClassSpec, discover
+
+    try:
+        grid = Grid(
+            qualities=_int_list(qualities, "--qualities"),
+            cutoffs=_int_list(cutoffs, "--cutoffs"),
+            subsamplings=tuple(s.strip() for s in subsamplings.split(",") if s.strip()),
+        )
+    except ValueError as exc:
+        raise click.BadParameter(str(exc))
+    current = Setting(current_quality, 64, current_subsampling)
+    overrides = {
+        k: v
+        for k, v in dict(target_ssim=target_ssim, coverage=coverage, chroma_floor=chroma_floor, local_floor=local_floor).items()
+        if v is not None
+    }
+    defaults = replace(ClassSpec(name="default"), **overrides)
+    try:
+        sample = discover(sample_dir, classes_file=classes_file, defaults=defaults)
+    except ValueError as exc:
+        raise click.ClickException(str(exc))
+    if not sample.jobs:
+        click.echo(f"no image files found in {sample_dir}", err=True)
+        sys.exit(EXIT_NOTHING_USABLE)
+
+    cache = None if no_cache else DirectoryCache(cache_dir or default_cache_dir())
+    try:
+        runner = make_runner(workers=workers, scheduler=scheduler)
+    except (ValueError, RunnerError) as exc:
+        raise click.ClickException(str(exc))
+    bar = tqdm(total=len(sample.jobs), unit="img", desc="sweep", disable=quiet, file=sys.stderr)
+
+    def progress(done, total):
+        bar.total = total
+        bar.n = done
+        bar.refresh()
+
+    try:
+        with runner:
+            outcome = run_sweep(sample.jobs, sample.classes, current=current, grid=grid, runner=runner,
+                                progress=progress, cache=cache, refine=not no_refine, rejected=sample.rejected)
+            bar.close()
+            doc = outcome.document
+            if verify:
+                _verify(doc, sample, runner, cache, quiet)
+    except RunnerError as exc:
+        bar.close()
+        raise click.ClickException(str(exc))
+    except KeyboardInterrupt:
+        bar.close()
+        click.echo("interrupted; finished images are kept in the cache and reused on the next run", err=True)
+        sys.exit(130)
+
+    for w in outcome.warnings:
+        click.echo(f"warning: {w}", err=True)
+    text = json.dumps(doc, indent=2)
+    if json_out is not None:
+        if str(json_out) == "-":
+            click.echo(text)
+        else:
+            json_out.write_text(text + "\n", encoding="utf-8")
+    if csv_out is not None:
+        csv_out.write_text(report.document_to_csv(doc), encoding="utf-8")
+    if str(json_out) != "-":
+        click.echo(report.format_table(doc))
+        click.echo(
+            f"{outcome.evaluated} image passes computed, {outcome.reused} reused from the cache; "
+            f"{outcome.settings_evaluated} settings evaluated in all ({runner.description})"
+        )
+    if not doc["classes"]:
+        sys.exit(EXIT_NOTHING_USABLE)
+    if any(c["setting"] is None for c in doc["classes"]):
+        sys.exit(EXIT_UNMET)
+
+
+def _verify(doc, sample, runner, cache, quiet):
+    """Re-encode each image at its class's chosen setting(s) with Pillow; add actual figures to doc."""
+    from tqdm import tqdm
+
+    from .evaluate import VerifyJob, verify_image
+    from .runner import TaskFailed
+
+    chosen = {(c["name"], c["width"]): Setting.from_dict(c["setting"]) for c in doc["classes"] if c["setting"]}
+    jobs = []
+    for job in sample.jobs:
+        pairs = tuple((w, chosen[(job.class_name, w)]) for w in job.widths if (job.class_name, w) in chosen)
+        if pairs and any(i["path"] == job.key for i in doc["images"]):
+            jobs.append(VerifyJob(job.key, job.source, job.background, pairs))
+    actual = {}
+    todo = []
+    for j in jobs:
+        fp = fingerprint("verify", j.source, {"background": list(j.background), "pairs": [[w, s.as_dict()] for w, s in j.settings_by_width]})
+        hit = cache.get(fp) if cache is not None else None
+        if hit is not None:
+            actual[j.key] = hit
+        else:
+            todo.append((j, fp))
+    for index, result in tqdm(runner.map_unordered(verify_image, [j for j, _ in todo]), total=len(todo),
+                              unit="img", desc="verify", disable=quiet, file=sys.stderr):
+        if isinstance(result, TaskFailed):
+            continue
+        actual[todo[index][0].key] = result
+        if cache is not None:
+            cache.put(todo[index][1], result)
+    for img in doc["images"]:
+        for entry in actual.get(img["path"], {}).get("widths", []):
+            if entry["width"] == img["width"]:
+                img.update({k: (round(v, 6) if isinstance(v, float) else v) for k, v in entry.items() if k != "width"})
+    for c in doc["classes"]:
+        if not c["setting"]:
+            continue
+        imgs = [i for i in doc["images"] if i["class"] == c["name"] and i["width"] == c["width"] and "actual_bytes" in i]
+        if not imgs:
+            continue
+        total = sum(i["actual_bytes"] for i in imgs)
+        meets = [i["actual_ssim"] >= c["target_ssim"] for i in imgs]
+        c["verified"] = {
+            "actual_bytes": total,
+            "bytes_error": (c["estimated_bytes"] - total) / total,
+            "actual_share_meeting": sum(meets) / len(meets),
+            "actual_ssim_min": min(i["actual_ssim"] for i in imgs),
+        }
+
+
+@main.command()
+@click.option("--host", default="127.0.0.1", show_default=True)
+@click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535))
+@click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path), help="Database and stored images [default: the instance folder].")
+def serve(host, port, data_dir):
+    """Start the web app on a production WSGI server (waitress)."""
+    from webapp.server import serve as run
+
+    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=False)
+
+
+@main.command()
+@click.option("--host", default="127.0.0.1", show_default=True)
+@click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535))
+@click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path), help="Database and stored images [default: the instance folder].")
+def demo(host, port, data_dir):
+    """Start the web app with the demo sample set loaded and its sweep running."""
+    from webapp.server import serve as run
+
+    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=True)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,133 @@
+"""One image job in, its curves out: the unit of work that runners ship to worker processes.
+
+A job names an image (a path or its bytes), its class's delivery widths and background, and the
+settings to evaluate. The worker decodes it (``dct.io``), resizes it to each width and sweeps the
+settings with the engine. A file that cannot be decoded comes back as a result with ``error`` set,
+so one broken file never sinks a sample set.
+"""
+
+from __future__ import annotations
+
+import io as _io
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .color import rgb_to_ycbcr
+from .io import ImageRejected, decode_image, encode_jpeg, resize_to_width
+from .quality import ReferenceStats
+from .simulate import MIN_SIDE, PreparedImage, SweepPoint
+from .tables import Setting
+
+
+@dataclass
+class WidthCurve:
+    """An image's curve at one delivery width: every evaluated setting's point."""
+
+    width: int | None  # the requested delivery width (None: the image's own width)
+    pixel_width: int  # what was evaluated, after resizing (never upscaled)
+    pixel_height: int
+    points: list[SweepPoint]
+
+    def as_dict(self) -> dict:
+        return {
+            "width": self.width,
+            "pixel_width": self.pixel_width,
+            "pixel_height": self.pixel_height,
+            "points": [p.as_dict() for p in self.points],
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "WidthCurve":
+        return cls(d["width"], int(d["pixel_width"]), int(d["pixel_height"]), [SweepPoint.from_dict(p) for p in d["points"]])
+
+
+@dataclass
+class ImageResult:
+    key: str
+    class_name: str
+    curves: list[WidthCurve] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+    error: str | None = None
+
+    def as_dict(self) -> dict:
+        return {
+            "key": self.key,
+            "class": self.class_name,
+            "curves": [c.as_dict() for c in self.curves],
+            "warnings": list(self.warnings),
+            "error": self.error,
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "ImageResult":
+        return cls(d["key"], d["class"], [WidthCurve.from_dict(c) for c in d["curves"]], list(d["warnings"]), d["error"])
+
+
+def evaluate_image(job) -> ImageResult:
+    """Decode, resize and sweep one image job (a ``dct.sampleset.ImageJob``) at ``job.settings``."""
+    result = ImageResult(job.key, job.class_name)
+    try:
+        decoded = decode_image(job.source, background=job.background)
+    except ImageRejected as exc:
+        result.error = str(exc)
+        return result
+    result.warnings.extend(decoded.warnings)
+    settings = list(job.settings or ())
+    if not settings:
+        result.error = "no settings to evaluate"
+        return result
+    for width in job.widths:
+        pixels = resize_to_width(decoded.pixels, width)
+        h, w = pixels.shape[:2]
+        if h < MIN_SIDE or w < MIN_SIDE:
+            result.error = f"image too small: {w}x{h} pixels; SSIM needs at least {MIN_SIDE}x{MIN_SIDE}"
+            result.curves = []
+            return result
+        prepared = PreparedImage(pixels)
+        points = [prepared.evaluate(s) for s in settings]
+        result.curves.append(WidthCurve(width, w, h, points))
+    return result
+
+
+@dataclass(frozen=True)
+class VerifyJob:
+    """Re-encode one image at chosen settings with Pillow, to check the estimates against reality."""
+
+    key: str
+    source: str | bytes
+    background: tuple[int, int, int]
+    settings_by_width: tuple[tuple[int | None, Setting], ...]
+
+
+def verify_image(job: VerifyJob) -> dict:
+    """Actual bytes and SSIM of Pillow's JPEG with the exported tables, per width.
+
+    Returns ``{"key", "widths": [{"width", "actual_bytes", "actual_ssim", "actual_ssim_cb", "actual_ssim_cr"}]}``;
+    SSIM is measured on the luma of the decoded RGB (what a browser shows) and on libjpeg's own
+    chroma planes.
+    """
+    from PIL import Image  # dct.io owns encoding; decoding back here is the measurement itself
+
+    decoded = decode_image(job.source, background=job.background)
+    out = []
+    for width, setting in job.settings_by_width:
+        pixels = resize_to_width(decoded.pixels, width)
+        data = encode_jpeg(pixels, quality=setting.quality, cutoff=setting.cutoff, subsampling=setting.subsampling)
+        with Image.open(_io.BytesIO(data)) as im:
+            rgb = np.asarray(im)
+        entry = {"width": width, "actual_bytes": len(data)}
+        if pixels.ndim == 2:
+            entry.update(actual_ssim=ReferenceStats(pixels).compare(rgb).ssim, actual_ssim_cb=None, actual_ssim_cr=None)
+        else:
+            with Image.open(_io.BytesIO(data)) as im:
+                im.draft("YCbCr", im.size)
+                planes = np.asarray(im).astype(np.float32).transpose(2, 0, 1)
+            orig = rgb_to_ycbcr(pixels)
+            entry.update(
+                actual_ssim=ReferenceStats(orig[0]).compare(rgb_to_ycbcr(rgb)[0]).ssim,
+                actual_ssim_cb=ReferenceStats(orig[1]).compare(planes[1]).ssim,
+                actual_ssim_cr=ReferenceStats(orig[2]).compare(planes[2]).ssim,
+            )
+        out.append(entry)
+    return {"key": job.key, "widths": out}

@@ -1,0 +1,291 @@
+"""A whole sweep: every image on the coarse grid, refinement where each class's decision lies, then
+the decision and the document.
+
+Size grows with quality for a fixed cutoff and subsampling, but SSIM is only nearly monotone (the DC
+quantizer's rounding makes it dip now and then), so a bisection could step over the cheapest
+qualifying setting. The refinement instead looks at every pair of neighbouring coarse qualities of
+every cutoff/subsampling combination and evaluates the fine qualities between them when
+
+* the pair's lower end is cheaper than the best qualifying coarse setting (otherwise nothing in
+  between can be cheaper, since size is monotone), and
+* the class is within ``REFINE_MARGIN`` of qualifying at one of the two ends (otherwise no quality
+  in between can reach the target, as long as SSIM's dips stay smaller than the margin).
+
+The result is the cheapest setting of the full grid under that assumption; tests compare it with
+an exhaustive search. Per-image curves are kept, so a new target or coverage is answered from them
+without computing again (:func:`redecide`).
+"""
+
+from __future__ import annotations
+
+import threading
+from dataclasses import dataclass, field, replace
+from typing import Callable, Iterable
+
+from . import budget, report
+from .cache import ResultCache, fingerprint
+from .evaluate import ImageResult, evaluate_image
+from .grid import DEFAULT_CURRENT, DEFAULT_GRID, Grid
+from .runner import TaskFailed, make_runner
+from .sampleset import ClassSpec, ImageJob
+from .tables import Setting
+
+REFINE_MARGIN = 0.004  # SSIM; larger than the dips seen between neighbouring qualities
+CURVES_SCHEMA = 1
+
+
+def targets_for(spec: ClassSpec) -> budget.Targets:
+    return budget.Targets(
+        target_ssim=spec.target_ssim,
+        coverage=spec.coverage,
+        chroma_floor=spec.chroma_floor,
+        local_floor=budget.DEFAULT_LOCAL_FLOOR if spec.local_floor is None else spec.local_floor,
+    )
+
+
+@dataclass
+class SweepOutcome:
+    curves: dict  # JSON-serialisable: every image's points; feed it to redecide()
+    document: dict  # the versioned result document (dct.report)
+    cancelled: bool = False
+    evaluated: int = 0  # image passes computed in this run
+    reused: int = 0  # image passes found in the cache
+    settings_evaluated: int = 0  # (image, setting) pairs in the curves, summed over images
+    warnings: list[str] = field(default_factory=list)
+
+
+def _job_fingerprint(job: ImageJob) -> str:
+    return fingerprint(
+        "evaluate",
+        job.source,
+        {
+            "widths": list(job.widths),
+            "background": list(job.background),
+            "settings": [s.as_dict() for s in job.settings],
+        },
+    )
+
+
+class _Progress:
+    def __init__(self, callback):
+        self.callback = callback
+        self.done = 0
+        self.total = 0
+
+    def grow(self, n: int):
+        self.total += n
+        self._report()
+
+    def step(self):
+        self.done += 1
+        self._report()
+
+    def _report(self):
+        if self.callback is not None:
+            self.callback(self.done, self.total)
+
+
+def _run_jobs(jobs, runner, cache, progress: _Progress, cancel, counters) -> dict[str, ImageResult]:
+    """Evaluate jobs (cache first), keyed by job key."""
+    out: dict[str, ImageResult] = {}
+    todo, prints = [], []
+    for job in jobs:
+        fp = _job_fingerprint(job)
+        hit = cache.get(fp) if cache is not None else None
+        if hit is not None:
+            out[job.key] = ImageResult.from_dict(hit)
+            counters["reused"] += 1
+            progress.step()
+        else:
+            todo.append(job)
+            prints.append(fp)
+    if not todo:
+        return out
+    for index, result in runner.map_unordered(evaluate_image, todo, cancel=cancel):
+        job = todo[index]
+        if isinstance(result, TaskFailed):
+            result = ImageResult(job.key, job.class_name, error=f"evaluation failed: {result.message}")
+        elif cache is not None and result.error is None:
+            cache.put(prints[index], result.as_dict())
+        out[job.key] = result
+        counters["evaluated"] += 1
+        progress.step()
+    return out
+
+
+def _measure(point) -> budget.Measure:
+    return budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local)
+
+
+def class_tables(results: Iterable[ImageResult], class_name: str, width) -> dict[str, dict[Setting, budget.Measure]]:
+    """{image key: {Setting: Measure}} for one class at one width, from evaluated results."""
+    table = {}
+    for r in results:
+        if r.error is not None or r.class_name != class_name:
+            continue
+        for curve in r.curves:
+            if curve.width == width:
+                table[r.key] = {p.setting: _measure(p) for p in curve.points}
+    return table
+
+
+def plan_refinement(
+    results: dict[str, ImageResult], classes: dict[str, ClassSpec], grid: Grid, current: Setting
+) -> dict[str, set[Setting]]:
+    """Fine settings to evaluate per class, where the class's decision may lie (see module docstring)."""
+    coarse = grid.coarse_qualities()
+    fine = grid.sorted_qualities
+    plan: dict[str, set[Setting]] = {}
+    for name, spec in classes.items():
+        targets = targets_for(spec)
+        wanted: set[Setting] = set()
+        for width in spec.widths:
+            table = class_tables(results.values(), name, width)
+            if not table:
+                continue
+            keys = sorted(table)
+            summaries = {}
+            for k, s in grid.combos():
+                for q in coarse:
+                    setting = Setting(q, k, s)
+                    if all(setting in table[key] for key in keys):
+                        summaries[setting] = budget.summarize(setting, [table[key][setting] for key in keys], targets)
+            qualifying = [x.total_bytes for x in summaries.values() if x.qualifies]
+            best = min(qualifying) if qualifying else float("inf")
+            for k, s in grid.combos():
+                for qa, qb in zip(coarse, coarse[1:]):
+                    a, b = summaries.get(Setting(qa, k, s)), summaries.get(Setting(qb, k, s))
+                    if a is None or b is None or a.total_bytes >= best:
+                        continue
+                    if max(a.class_slack, b.class_slack) < -REFINE_MARGIN:
+                        continue
+                    wanted.update(Setting(q, k, s) for q in fine if qa < q < qb)
+        if wanted:
+            plan[name] = wanted
+    return plan
+
+
+def _merge(base: ImageResult, extra: ImageResult) -> ImageResult:
+    if extra.error is not None:
+        return base
+    by_width = {c.width: c for c in base.curves}
+    for c in extra.curves:
+        if c.width in by_width:
+            known = {p.setting for p in by_width[c.width].points}
+            by_width[c.width].points.extend(p for p in c.points if p.setting not in known)
+    return base
+
+
+def run_sweep(
+    jobs: list[ImageJob],
+    classes: dict[str, ClassSpec],
+    *,
+    current: Setting = DEFAULT_CURRENT,
+    grid: Grid = DEFAULT_GRID,
+    runner=None,
+    progress: Callable[[int, int], None] | None = None,
+    cancel: threading.Event | None = None,
+    cache: ResultCache | None = None,
+    refine: bool = True,
+    rejected: Iterable = (),
+) -> SweepOutcome:
+    """Sweep a sample set and decide every class.
+
+    Parameters
+    ----------
+    jobs : list of ImageJob
+        Their ``settings`` are ignored: the pipeline sets them (coarse grid, then refinement).
+    classes : {name: ClassSpec}
+        Targets, coverage, floors and widths per class; every job's class must be here.
+    current : Setting
+        The setting in use today; always evaluated, for the savings figure.
+    grid : Grid
+    runner : dct.runner.Runner, optional
+        Where the work runs; by default a local process pool on all cores (closed afterwards).
+    progress : callable(done, total), optional
+        Called as image passes finish; ``total`` grows once when the refinement pass is planned.
+    cancel : threading.Event, optional
+        Stops the sweep early; the outcome then has ``cancelled=True`` and no decisions.
+    cache : ResultCache, optional
+        Finished image passes are stored here and reused, so an interrupted sweep resumes.
+    refine : bool
+        False evaluates only the coarse grid (faster, coarser decisions).
+    rejected : iterable of objects with ``path`` and ``error``
+        Files refused before the sweep (discovery), listed in the document.
+    """
+    missing = sorted({j.class_name for j in jobs} - set(classes))
+    if missing:
+        raise ValueError(f"jobs name classes without a ClassSpec: {missing!r}")
+    own_runner = runner is None
+    runner = runner or make_runner()
+    counters = {"evaluated": 0, "reused": 0}
+    tracker = _Progress(progress)
+    coarse_settings = list(dict.fromkeys(grid.coarse_settings() + [current]))
+    try:
+        tracker.grow(len(jobs))
+        first = [replace(j, settings=tuple(coarse_settings)) for j in jobs]
+        results = _run_jobs(first, runner, cache, tracker, cancel, counters)
+        if cancel is not None and cancel.is_set():
+            return _cancelled(counters)
+        if refine:
+            plan = plan_refinement(results, classes, grid, current)
+            second = [
+                replace(j, settings=tuple(sorted(plan[j.class_name])))
+                for j in jobs
+                if j.class_name in plan and results.get(j.key) is not None and results[j.key].error is None
+            ]
+            tracker.grow(len(second))
+            extra = _run_jobs(second, runner, cache, tracker, cancel, counters)
+            if cancel is not None and cancel.is_set():
+                return _cancelled(counters)
+            for key, r in extra.items():
+                results[key] = _merge(results[key], r)
+    finally:
+        if own_runner:
+            runner.close()
+    ordered = [results[j.key] for j in sorted(jobs, key=lambda j: j.key)]
+    curves = {
+        "schema_version": CURVES_SCHEMA,
+        "grid": grid.as_dict(),
+        "current": current.as_dict(),
+        "images": [r.as_dict() for r in ordered],
+        "rejected": [{"path": r.path, "error": r.error} for r in rejected],
+    }
+    document = redecide(curves, classes, current=current)
+    return SweepOutcome(
+        curves=curves,
+        document=document,
+        evaluated=counters["evaluated"],
+        reused=counters["reused"],
+        settings_evaluated=sum(len(c.points) for r in ordered for c in r.curves),
+        warnings=[f"{r.key}: {w}" for r in ordered for w in r.warnings],
+    )
+
+
+def _cancelled(counters) -> SweepOutcome:
+    return SweepOutcome(curves={}, document={}, cancelled=True, evaluated=counters["evaluated"], reused=counters["reused"])
+
+
+def redecide(curves: dict, classes: dict[str, ClassSpec], *, current: Setting | None = None) -> dict:
+    """Decide every class again from stored curves (no encoding): the document for these targets."""
+    if current is None:
+        current = Setting.from_dict(curves["current"])
+    results = [ImageResult.from_dict(d) for d in curves["images"]]
+    decisions = []
+    for name in sorted(classes):
+        spec = classes[name]
+        for width in spec.widths:
+            table = class_tables(results, name, width)
+            if not table:
+                continue
+            decision = budget.decide_class(table, targets_for(spec), current=current)
+            decisions.append((spec, width, decision))
+    rejected = list(curves.get("rejected", []))
+    rejected += [{"path": r.key, "error": r.error} for r in results if r.error is not None]
+    return report.build_document(
+        decisions=decisions,
+        results=results,
+        rejected=rejected,
+        current=current,
+        grid=curves.get("grid"),
+    )

@@ -1,0 +1,202 @@
+"""The result document (JSON, schema_version 1), its CSV form and the terminal table.
+
+Document keys (stable; scripts, the web API and exports depend on them)::
+
+    schema_version, generator, created, current{quality,cutoff,subsampling}, grid{...},
+    classes: [{name, width, image_count, target_ssim, coverage, chroma_floor, local_floor,
+               setting{quality,cutoff,subsampling} | null, quant_tables{luma,chroma} | null,
+               meets_target, coverage_met, share_meeting, estimated_bytes, mean_bytes, bpp,
+               ssim_min, ssim_at_coverage, current_bytes, savings_vs_current, chosen_point,
+               current_point, frontier[{quality,cutoff,subsampling,estimated_bytes,ssim}], message}],
+    images: [{path, class, width, pixel_width, pixel_height, setting, estimated_bytes, ssim,
+              ssim_cb, ssim_cr, ssim_local, meets}],
+    rejected: [{path, error}]
+
+``estimated_bytes`` of a class is the total over its images; ``ssim`` of a frontier point is the
+luma SSIM that a ``coverage`` share of the class reaches; ``savings_vs_current`` is the fraction
+of the current default's bytes saved (0.31 = 31 % fewer bytes). Quantization tables are 8x8 lists
+in natural row-major order, exactly what an encoder's table option takes.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from datetime import datetime, timezone
+
+from . import __version__, budget
+from .tables import Setting
+
+SCHEMA_VERSION = 1
+
+
+def _point(summary: budget.SettingSummary | None) -> dict | None:
+    if summary is None:
+        return None
+    d = summary.setting.as_dict()
+    d.update(estimated_bytes=summary.total_bytes, ssim=round(summary.ssim_at_coverage, 6))
+    return d
+
+
+def _tables(setting: Setting) -> dict:
+    luma, chroma = setting.tables()
+    return {"luma": luma.tolist(), "chroma": chroma.tolist()}
+
+
+def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
+    targets_local = spec.local_floor if spec.local_floor is not None else budget.DEFAULT_LOCAL_FLOOR
+    chroma_floor = spec.chroma_floor if spec.chroma_floor is not None else spec.target_ssim
+    s = decision.summary
+    entry = {
+        "name": spec.name,
+        "width": width,
+        "image_count": decision.image_count,
+        "target_ssim": spec.target_ssim,
+        "coverage": spec.coverage,
+        "chroma_floor": chroma_floor,
+        "local_floor": targets_local,
+        "setting": decision.setting.as_dict() if decision.setting else None,
+        "quant_tables": _tables(decision.setting) if decision.setting else None,
+        "meets_target": s is not None,
+        "coverage_met": s is not None,
+        "share_meeting": round(s.share_accepting, 6) if s else (round(decision.best_share.share_accepting, 6) if decision.best_share else 0.0),
+        "estimated_bytes": s.total_bytes if s else None,
+        "mean_bytes": round(s.total_bytes / decision.image_count, 1) if s else None,
+        "bpp": round(8.0 * s.total_bytes / pixels, 4) if s and pixels else None,
+        "ssim_min": round(s.ssim_min, 6) if s else None,
+        "ssim_at_coverage": round(s.ssim_at_coverage, 6) if s else None,
+        "current_bytes": decision.current.total_bytes if decision.current else None,
+        "savings_vs_current": round(decision.savings_vs_current, 6) if decision.savings_vs_current is not None else None,
+        "chosen_point": _point(s),
+        "current_point": _point(decision.current),
+        "frontier": [_point(f) for f in decision.frontier],
+        "message": None,
+    }
+    if s is None:
+        best = decision.best_share
+        closest = f"; closest: {best.setting.label()} with {best.share_accepting:.0%} of images" if best else ""
+        entry["message"] = (
+            f"no setting in the grid reaches SSIM {spec.target_ssim} (chroma floor {chroma_floor}, "
+            f"local floor {targets_local}) for {spec.coverage:.0%} of images{closest}"
+        )
+    return entry
+
+
+def build_document(*, decisions, results, rejected, current: Setting, grid: dict | None) -> dict:
+    """Assemble the document from per-class decisions and per-image results."""
+    by_key = {r.key: r for r in results}
+    classes, images = [], []
+    for spec, width, decision in decisions:
+        keys = sorted(decision.per_image) or sorted(
+            r.key for r in results if r.class_name == spec.name and r.error is None
+        )
+        shown = decision.setting or (decision.best_share.setting if decision.best_share else None)
+        targets = budget.Targets(
+            spec.target_ssim,
+            spec.coverage,
+            spec.chroma_floor,
+            budget.DEFAULT_LOCAL_FLOOR if spec.local_floor is None else spec.local_floor,
+        )
+        pixels = 0
+        for key in keys:
+            curve = next(c for c in by_key[key].curves if c.width == width)
+            pixels += curve.pixel_width * curve.pixel_height
+            point = next((p for p in curve.points if p.setting == shown), None)
+            if point is None:
+                continue
+            m = budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local)
+            images.append(
+                {
+                    "path": key,
+                    "class": spec.name,
+                    "width": width,
+                    "pixel_width": curve.pixel_width,
+                    "pixel_height": curve.pixel_height,
+                    "setting": shown.as_dict(),
+                    "estimated_bytes": point.estimated_bytes,
+                    "ssim": round(point.ssim, 6),
+                    "ssim_cb": None if point.ssim_cb is None else round(point.ssim_cb, 6),
+                    "ssim_cr": None if point.ssim_cr is None else round(point.ssim_cr, 6),
+                    "ssim_local": round(point.ssim_local, 6),
+                    "meets": budget.accepts(m, targets),
+                }
+            )
+        classes.append(class_entry(spec, width, decision, pixels))
+    return {
+        "schema_version": SCHEMA_VERSION,
+        "generator": f"eightfold {__version__}",
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "current": current.as_dict(),
+        "grid": grid,
+        "classes": classes,
+        "images": images,
+        "rejected": sorted(rejected, key=lambda r: r["path"]),
+    }
+
+
+CSV_COLUMNS = [
+    "name", "width", "image_count", "quality", "cutoff", "subsampling", "estimated_bytes", "mean_bytes",
+    "bpp", "meets_target", "coverage_met", "share_meeting", "ssim_min", "ssim_at_coverage", "current_bytes",
+    "savings_vs_current", "target_ssim", "coverage", "chroma_floor", "local_floor", "quant_table_luma",
+    "quant_table_chroma", "message",
+]  # fmt: skip
+
+
+def document_to_csv(doc: dict) -> str:
+    """One row per class (and width); tables as 64 space-separated values in row-major order."""
+    buf = io.StringIO()
+    writer = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator="\n")
+    writer.writeheader()
+    for c in doc["classes"]:
+        row = {k: c.get(k) for k in CSV_COLUMNS if k in c}
+        setting = c.get("setting") or {}
+        row.update(quality=setting.get("quality"), cutoff=setting.get("cutoff"), subsampling=setting.get("subsampling"))
+        tables = c.get("quant_tables") or {}
+        for name in ("luma", "chroma"):
+            t = tables.get(name)
+            row[f"quant_table_{name}"] = " ".join(str(v) for r in t for v in r) if t else ""
+        writer.writerow({k: ("" if v is None else v) for k, v in row.items()})
+    return buf.getvalue()
+
+
+def _kb(n) -> str:
+    return "-" if n is None else f"{n / 1000:,.1f}"
+
+
+def format_table(doc: dict) -> str:
+    """A readable terminal table of the class decisions."""
+    head = ["class", "width", "imgs", "setting", "mean KB", "total KB", "bpp", "meeting", "worst SSIM", "saved"]
+    rows = []
+    for c in doc["classes"]:
+        s = c["setting"]
+        rows.append(
+            [
+                c["name"],
+                "as is" if c["width"] is None else str(c["width"]),
+                str(c["image_count"]),
+                "NONE" if s is None else f"q{s['quality']} k{s['cutoff']} {s['subsampling']}",
+                _kb(c["mean_bytes"]),
+                _kb(c["estimated_bytes"]),
+                "-" if c["bpp"] is None else f"{c['bpp']:.2f}",
+                f"{c['share_meeting']:.0%}",
+                "-" if c["ssim_min"] is None else f"{c['ssim_min']:.4f}",
+                "-" if c["savings_vs_current"] is None else f"{c['savings_vs_current']:+.0%}",
+            ]
+        )
+    widths = [max(len(r[i]) for r in rows + [head]) for i in range(len(head))]
+    line = lambda r: "  ".join(v.ljust(w) if i in (0, 3) else v.rjust(w) for i, (v, w) in enumerate(zip(r, widths)))
+    out = [line(head), line(["-" * w for w in widths])] + [line(r) for r in rows]
+    for c in doc["classes"]:
+        if c["message"]:
+            out.append(f"! {c['name']}: {c['message']}")
+        if c.get("verified"):
+            v = c["verified"]
+            out.append(
+                f"  verified {c['name']}: actual {_kb(v['actual_bytes'])} KB vs estimated {_kb(c['estimated_bytes'])} KB "
+                f"({v['bytes_error']:+.2%}), actual share meeting {v['actual_share_meeting']:.0%}, "
+                f"actual worst SSIM {v['actual_ssim_min']:.4f}"
+            )
+    if doc["rejected"]:
+        out.append(f"rejected {len(doc['rejected'])} file(s):")
+        out += [f"  {r['path']}: {r['error']}" for r in doc["rejected"]]
+    return "\n".join(out)
