@@ -2,7 +2,11 @@
 
 from __future__ import annotations
 
+import logging
+
 from markupsafe import Markup
+
+log = logging.getLogger(__name__)
 
 SORTS = {
     "class": lambda e: (e["name"].lower(), e["width"] or 0),
@@ -83,4 +87,8 @@ def chart(entry: dict, *, width: int = 420, height: int = 260):
         from webapp.charts import frontier_svg
     except ImportError:
         return None
-    return Markup(frontier_svg(entry, width=width, height=height))
+    try:
+        return Markup(frontier_svg(entry, width=width, height=height))
+    except Exception:  # a chart problem must not take the results page down with it
+        log.exception("frontier chart failed for class %r", entry.get("name"))
+        return None

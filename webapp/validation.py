@@ -241,9 +241,10 @@ def signoff(payload, class_names: list[str]) -> dict:
     comment = payload.get("comment", "")
     if comment is None:
         comment = ""
-    if not isinstance(comment, str) or len(comment) > MAX_COMMENT:
-        raise ValueError(f"comment must be text of at most {MAX_COMMENT} characters, got {type(comment).__name__}"
-                         f" of length {len(comment) if isinstance(comment, str) else 'n/a'}")
+    if not isinstance(comment, str):
+        raise ValueError(f"comment must be text of at most {MAX_COMMENT} characters, got {comment!r}")
+    if len(comment) > MAX_COMMENT:
+        raise ValueError(f"comment must be text of at most {MAX_COMMENT} characters, got {len(comment)} characters")
     return {"class_name": cls, "name": name.strip(), "verdict": verdict, "comment": comment.strip()}
 
 
