@@ -55,14 +55,22 @@ def sorted_rows(document: dict, sort: str, direction: str):
 
 
 def totals(document: dict) -> dict:
-    chosen = sum(e.get("estimated_bytes") or 0 for e in document.get("classes", []))
-    current = sum(e.get("current_bytes") or 0 for e in document.get("classes", []))
+    """Bytes at the chosen settings against the current default, over the classes that have a setting.
+
+    A class with no qualifying setting is left out of both sides (and listed), so it cannot make the
+    saving look bigger than it is.
+    """
+    entries = document.get("classes", [])
+    decided = [e for e in entries if e.get("setting")]
+    chosen = sum(e.get("estimated_bytes") or 0 for e in decided)
+    current = sum(e.get("current_bytes") or 0 for e in decided)
     return {
         "chosen_bytes": chosen,
         "current_bytes": current,
         "savings": (1 - chosen / current) if current else None,
-        "images": len(document.get("images", [])),
-        "unmet": [e["name"] for e in document.get("classes", []) if not e.get("meets_target", True)],
+        "images": sum(e.get("image_count") or 0 for e in decided),
+        "unmet": sorted({e["name"] for e in entries if not e.get("meets_target", True)}),
+        "undecided": sorted({e["name"] for e in entries if not e.get("setting")}),
     }
 
 
