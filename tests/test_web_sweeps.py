@@ -378,3 +378,46 @@ def test_demo_loader_is_idempotent(tmp_path):
     assert body["status"] == "done"
     assert {e["name"] for e in body["result"]["classes"]} == {"product", "hero"}
     app.extensions["eightfold_worker"].stop()
+
+
+def test_totals_leave_out_classes_without_a_setting(swept):
+    from webapp.results import totals
+
+    _, client, _, sweep_id, _ = swept
+    doc = client.post(f"/api/sweeps/{sweep_id}/decide",
+                      json={"classes": {"product": {"target_ssim": 0.9999}}}).get_json()
+    try:
+        product = [e for e in doc["classes"] if e["name"] == "product"]
+        hero = [e for e in doc["classes"] if e["name"] == "hero"]
+        assert all(e["setting"] is None for e in product)
+        t = totals(doc)
+        assert t["undecided"] == ["product"]
+        assert t["chosen_bytes"] == sum(e["estimated_bytes"] for e in hero)
+        assert t["current_bytes"] == sum(e["current_bytes"] for e in hero)
+        page = client.get(f"/sweeps/{sweep_id}").get_data(as_text=True)
+        assert "No setting reaches the target for: product (left out of these totals)." in page
+    finally:
+        client.post(f"/api/sweeps/{sweep_id}/decide", json={"classes": {"product": {"target_ssim": 0.95}}})
+
+
+def test_serve_demo_prints_the_live_page_and_starts_waitress(tmp_path, monkeypatch, capsys):
+    import waitress
+
+    import webapp.server as server
+
+    folder = tmp_path / "demo"
+    for name, data in FILES[:2]:
+        (folder / name).parent.mkdir(parents=True, exist_ok=True)
+        (folder / name).write_bytes(data)
+    monkeypatch.setattr(server, "DEMO_DIR", folder)
+    calls = []
+    monkeypatch.setattr(waitress, "serve", lambda app, **kw: calls.append((app, kw)))
+    server.serve(port=8123, data_dir=tmp_path / "data", demo=True)
+    (app, kw), = calls
+    assert kw == {"host": "127.0.0.1", "port": 8123, "threads": 6}
+    err = capsys.readouterr().err
+    sweep_id = err.split("/sweeps/")[1].split()[0]
+    assert f"http://localhost:8123/sweeps/{sweep_id}" in err
+    assert app.config["DATA_DIR"] == str(tmp_path / "data")
+    assert app.test_client().get(f"/api/sweeps/{sweep_id}").status_code == 200
+    app.extensions["eightfold_worker"].stop()  # cancels the (full-grid) demo sweep

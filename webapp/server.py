@@ -13,12 +13,13 @@ from webapp.paths import DEMO_DIR
 IMAGE_SUFFIXES = {".jpg", ".jpeg", ".png", ".gif", ".webp", ".tif", ".tiff", ".bmp"}
 
 
-def load_demo(app, folder=DEMO_DIR) -> str:
+def load_demo(app, folder=None) -> str:
     """Store ``demo_images/`` as a sample set (class = folder) and make sure it has a sweep.
 
     Idempotent: the same files under the same data directory reuse the stored set (content
     addressing) and its latest sweep that is not failed or cancelled. Returns the sweep id.
     """
+    folder = DEMO_DIR if folder is None else folder
     files = [(name, data) for name, data in ingest.read_folder(folder)
              if "." + name.rsplit(".", 1)[-1].lower() in IMAGE_SUFFIXES]
     if not files:
