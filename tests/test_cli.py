@@ -1,0 +1,115 @@
+"""The eightfold command line: a full sweep, bad files, verification and exit codes."""
+
+import csv
+import io
+import json
+import os
+import struct
+import zlib
+
+import pytest
+from click.testing import CliRunner
+from PIL import Image
+
+from dct.cli import EXIT_UNMET, main
+from tests.sets import noisy_photo, write_set
+
+FAST = ["--workers", "1", "--cutoffs", "64,20", "--quiet"]
+
+
+def huge_png_header(path):
+    """A PNG whose IHDR declares 40000 x 40000 pixels (ISO/IEC 15948 chunk layout), without the pixels."""
+    ihdr = struct.pack(">IIBBBBB", 40000, 40000, 8, 2, 0, 0, 0)
+    chunk = lambda t, d: struct.pack(">I", len(d)) + t + d + struct.pack(">I", zlib.crc32(t + d))
+    path.write_bytes(b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", ihdr) + chunk(b"IDAT", zlib.compress(b"\0" * 10)) + chunk(b"IEND", b""))
+
+
+@pytest.fixture
+def broken_set(tmp_path):
+    root = write_set(tmp_path / "set", flat=2, photo=2)
+    photo = root / "photo"
+    buf = io.BytesIO()
+    Image.fromarray(noisy_photo(9)).save(buf, "JPEG", quality=90)
+    (photo / "truncated.jpg").write_bytes(buf.getvalue()[: len(buf.getvalue()) // 2])
+    (photo / "notes.jpg").write_text("this is a text file, not a JPEG")
+    (photo / "empty.jpg").write_bytes(b"")
+    huge_png_header(photo / "huge.png")
+    os.symlink(tmp_path / "nowhere.jpg", photo / "unreadable.jpg")  # a link to nothing: cannot be read
+    return root
+
+
+def run(args):
+    result = CliRunner().invoke(main, args, catch_exceptions=False)
+    return result
+
+
+def test_broken_files_are_listed_and_the_rest_is_evaluated(broken_set, tmp_path):
+    out = tmp_path / "doc.json"
+    result = run(["sweep", str(broken_set), "--json", str(out), "--no-cache", *FAST])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(out.read_text())
+    rejected = {r["path"]: r["error"] for r in doc["rejected"]}
+    assert set(rejected) == {"photo/truncated.jpg", "photo/notes.jpg", "photo/empty.jpg", "photo/huge.png", "photo/unreadable.jpg"}
+    assert "truncated" in rejected["photo/truncated.jpg"]
+    assert "not an image" in rejected["photo/notes.jpg"]
+    assert "empty" in rejected["photo/empty.jpg"]
+    assert "too large" in rejected["photo/huge.png"]
+    assert {c["name"]: c["image_count"] for c in doc["classes"]} == {"flat": 2, "photo": 2}
+    assert all(c["setting"] for c in doc["classes"])
+    for path in rejected:
+        assert path in result.output  # every rejected file is listed with its reason
+
+
+def test_verify_matches_pillow(tmp_path):
+    root = write_set(tmp_path / "set", flat=3, photo=3)
+    out = tmp_path / "doc.json"
+    result = run(["sweep", str(root), "--json", str(out), "--verify", "--no-cache", "--csv", str(tmp_path / "c.csv"), *FAST])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(out.read_text())
+    for c in doc["classes"]:
+        imgs = [i for i in doc["images"] if i["class"] == c["name"]]
+        # Actual Pillow bytes within ±3 % of the estimate, per image and per class.
+        assert abs(c["verified"]["bytes_error"]) <= 0.03
+        for i in imgs:
+            assert abs(i["estimated_bytes"] - i["actual_bytes"]) / i["actual_bytes"] <= 0.03
+        # The actual SSIM meets the target for the coverage share, within 0.003.
+        share = sum(i["actual_ssim"] >= c["target_ssim"] - 0.003 for i in imgs) / len(imgs)
+        assert share >= c["coverage"] - 1e-9
+    rows = list(csv.DictReader(open(tmp_path / "c.csv")))
+    assert [r["name"] for r in rows] == ["flat", "photo"]
+    assert len(rows[0]["quant_table_luma"].split()) == 64
+    assert "verified flat" in result.output
+
+
+def test_unreachable_target_exits_with_its_own_code(tmp_path):
+    root = write_set(tmp_path / "set", flat=1, photo=2)
+    result = run(["sweep", str(root), "--target-ssim", "0.9999", "--coverage", "1", "--no-cache", "--no-refine", *FAST])
+    assert result.exit_code == EXIT_UNMET
+    assert "no setting in the grid reaches SSIM 0.9999" in result.output
+
+
+def test_json_to_stdout_and_cache_reuse(tmp_path):
+    root = write_set(tmp_path / "set", flat=1, photo=1)
+    cache = tmp_path / "cache"
+    first = run(["sweep", str(root), "--json", "-", "--cache-dir", str(cache), *FAST])
+    assert json.loads(first.output)["schema_version"] == 1
+    second = run(["sweep", str(root), "--cache-dir", str(cache), *FAST])
+    assert "0 image passes computed" in second.output
+
+
+@pytest.mark.parametrize(
+    "args, message",
+    [
+        (["--target-ssim", "1.5"], "must be in (0, 1]"),
+        (["--coverage", "0"], "must be in (0, 1]"),
+        (["--local-floor", "-1"], "must be in [0, 1]"),
+        (["--qualities", "abc"], "expected numbers like"),
+        (["--subsamplings", "4:1:1"], "grid subsampling must be one of"),
+        (["--workers", "2", "--scheduler", "tcp://127.0.0.1:1"], "cannot be combined"),
+    ],
+)
+def test_bad_options(tmp_path, args, message):
+    root = write_set(tmp_path / "set", flat=1, photo=0)
+    result = CliRunner().invoke(main, ["sweep", str(root), "--no-cache", "--quiet", *args])
+    assert result.exit_code in (1, 2)
+    assert message in result.output
