@@ -32,3 +32,28 @@ def die_on(item: tuple[int, float]) -> int:
         os._exit(3)
     time.sleep(delay)
     return value * value
+
+
+def blas_threads(_: object = None) -> dict[str, int]:
+    """Thread count each loaded OpenBLAS reports through its own ``*_get_num_threads`` call."""
+    import ctypes
+
+    import numpy  # noqa: F401  (loads numpy's OpenBLAS)
+    import scipy.linalg  # noqa: F401  (loads scipy's own copy)
+
+    with open("/proc/self/maps", encoding="utf-8", errors="replace") as fh:
+        paths = sorted({line.split()[-1] for line in fh if "openblas" in line.lower() and "/" in line})
+    out = {}
+    for path in paths:
+        lib = ctypes.CDLL(path)
+        for symbol in (
+            "openblas_get_num_threads",
+            "openblas_get_num_threads64_",
+            "scipy_openblas_get_num_threads",
+            "scipy_openblas_get_num_threads64_",
+        ):
+            getter = getattr(lib, symbol, None)
+            if getter is not None:
+                out[os.path.basename(path)] = int(getter())
+                break
+    return out

@@ -17,7 +17,7 @@ import time
 
 import pytest
 
-import _runner_tasks as tasks
+from tests import _runner_tasks as tasks
 from dct.runner import DaskRunner, LocalPoolRunner, RunnerError, TaskFailed, make_runner
 
 distributed = pytest.importorskip("distributed")

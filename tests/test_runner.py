@@ -15,7 +15,7 @@ import time
 
 import pytest
 
-import _runner_tasks as tasks
+from tests import _runner_tasks as tasks
 from dct.runner import (
     DaskRunner,
     InlineRunner,
@@ -184,9 +184,43 @@ def test_workers_that_cannot_start_are_a_clear_error():
         "    print('RunnerError:', exc)\n"
     )
     proc = subprocess.run(
-        [sys.executable, "-"], input=script, capture_output=True, text=True, timeout=60, cwd=os.path.dirname(__file__)
+        [sys.executable, "-"], input=script, capture_output=True, text=True, timeout=60
     )
     assert "RunnerError: the local worker processes could not start" in proc.stdout, proc.stderr[-2000:]
+
+
+needs_cores = pytest.mark.skipif(
+    (os.cpu_count() or 1) < 2 or not os.path.exists("/proc/self/maps") or "OPENBLAS_NUM_THREADS" in os.environ,
+    reason="OpenBLAS defaults to one thread per core: with one core (or a user setting) there is nothing to check",
+)
+
+
+@needs_cores
+def test_pool_workers_run_blas_on_one_thread(pool):
+    # Reference: OpenBLAS's own openblas_get_num_threads(), per loaded copy (numpy's and scipy's).
+    here = tasks.blas_threads()
+    assert here and max(here.values()) == os.cpu_count()  # this process keeps the default
+    (workers,) = {tuple(sorted(r.items())) for r in collect(pool, tasks.blas_threads, [0, 1]).values()}
+    assert dict(workers).keys() == here.keys()
+    assert set(dict(workers).values()) == {1}
+
+
+@needs_cores
+def test_blas_limited_even_when_numpy_loads_before_the_worker_starts(tmp_path):
+    # A main module that imports numpy is re-imported in every child before the pool's
+    # initializer runs, so the environment variables come too late there.
+    script = tmp_path / "main_with_numpy.py"
+    script.write_text(
+        "import numpy\n"
+        "from dct.runner import LocalPoolRunner\n"
+        "from tests import _runner_tasks as tasks\n"
+        "if __name__ == '__main__':\n"
+        "    with LocalPoolRunner(workers=2) as pool:\n"
+        "        print(sorted({v for _, r in pool.map_unordered(tasks.blas_threads, [0, 1]) for v in r.values()}))\n"
+    )
+    env = {**os.environ, "PYTHONPATH": os.path.dirname(os.path.dirname(os.path.abspath(__file__)))}
+    proc = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, timeout=120, env=env)
+    assert proc.stdout.strip() == "[1]", proc.stderr[-2000:]
 
 
 def test_closed_runner_refuses_work():
