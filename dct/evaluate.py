@@ -12,6 +12,7 @@ import io as _io
 from dataclasses import dataclass, field
 
 import numpy as np
+from threadpoolctl import threadpool_limits
 
 from .color import rgb_to_ycbcr
 from .io import ImageRejected, decode_image, encode_jpeg, resize_to_width
@@ -66,6 +67,13 @@ class ImageResult:
 
 def evaluate_image(job) -> ImageResult:
     """Decode, resize and sweep one image job (a ``dct.sampleset.ImageJob``) at ``job.settings``."""
+    # Parallelism comes from running one image per core; multi-threaded BLAS on top of that only
+    # makes the engine's many mid-sized matrix products fight for the same cores.
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _evaluate(job)
+
+
+def _evaluate(job) -> ImageResult:
     result = ImageResult(job.key, job.class_name)
     try:
         decoded = decode_image(job.source, background=job.background)

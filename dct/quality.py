@@ -129,11 +129,12 @@ class ReferenceStats:
                 f"window, got {ref.shape[1]}x{ref.shape[0]}"
             )
         self.shape = ref.shape
-        self.shifted = ref.astype(np.float32) - 128.0  # x - 128
+        # The plane itself is kept by reference (no copy); level-shifted strips are made on the fly.
+        self.plane = ref if ref.dtype == np.float32 else ref.astype(np.float32)
         self.mean = np.empty(ref.shape, dtype=np.float32)  # mu_x
         self.var = np.empty(ref.shape, dtype=np.float32)  # sigma_x^2
         for s, e in self._strips():
-            rows = _rows_with_halo(self.shifted, s, e)
+            rows = _rows_with_halo(self.plane, s, e) - 128.0
             f = _filter_strip(np.stack([rows, rows * rows]), e - s)
             self.mean[s:e] = f[0] + 128.0
             self.var[s:e] = f[1] - f[0] * f[0]
@@ -156,14 +157,13 @@ class ReferenceStats:
         if y.shape != self.shape:
             raise ValueError(f"distorted plane has shape {y.shape!r}, the reference {self.shape!r}")
         h, w = self.shape
-        ys_full = y - 128.0
         ssim_map = np.empty(self.shape, dtype=np.float32) if want_map else None
         total = 0.0
         tiles = []
         sq_err = 0.0
         for s, e in self._strips():
-            rows = _rows_with_halo(ys_full, s, e)
-            xs = _rows_with_halo(self.shifted, s, e)
+            rows = _rows_with_halo(y, s, e) - 128.0
+            xs = _rows_with_halo(self.plane, s, e) - 128.0
             f = _filter_strip(np.stack([rows, rows * rows, xs * rows]), e - s)
             uys, yy, xy = f[0], f[1], f[2]
             ux = self.mean[s:e]
@@ -181,8 +181,8 @@ class ReferenceStats:
             if r1 > r0:
                 total += float(strip[r0 - s : r1 - s, RADIUS : w - RADIUS].sum(dtype=np.float64))
             tiles.append(_tile_means(strip))
-            d = ys_full[s:e] - self.shifted[s:e]
-            sq_err += float(np.dot(d.ravel(), d.ravel()))
+            d = (y[s:e] - self.plane[s:e]).ravel()
+            sq_err += float(np.dot(d, d))
         interior = (h - 2 * RADIUS) * (w - 2 * RADIUS)
         tile_means = np.concatenate(tiles, axis=0)
         return SsimResult(
