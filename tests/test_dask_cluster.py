@@ -2,7 +2,9 @@
 
 The cluster is ``distributed.LocalCluster`` with two worker processes (each under its own nanny),
 one thread each. The reference for results is the local process pool (and, through it, the task
-function called directly, see tests/test_runner.py). The worker-loss test kills a worker process
+function called directly, see tests/test_runner.py). A real sweep (``dct.pipeline.run_sweep``) over a small generated sample set must give exactly the
+local pool's curves and decisions on the cluster, also when a worker dies during it. The
+worker-loss tests kill a worker process
 with SIGKILL while tasks are in flight and relies on the scheduler's own rescheduling; the
 scheduler's per-prefix ``suspicious`` counter proves that a running task was really lost and rerun.
 """
@@ -14,11 +16,17 @@ import signal
 import socket
 import threading
 import time
+from dataclasses import replace
+from pathlib import Path
 
 import pytest
 
 from tests import _runner_tasks as tasks
+from dct.grid import Grid
+from dct.pipeline import run_sweep
 from dct.runner import DaskRunner, LocalPoolRunner, RunnerError, TaskFailed, make_runner
+from dct.sampleset import discover
+from tests.sets import write_set
 
 distributed = pytest.importorskip("distributed")
 
@@ -137,6 +145,19 @@ def test_bad_address_is_refused(bad):
         DaskRunner(bad)
 
 
+def kill_a_busy_worker(cluster, client) -> int:
+    """SIGKILL the process of a worker that is running a task now; returns its pid."""
+    deadline = time.monotonic() + 10
+    while time.monotonic() < deadline:
+        busy = [addr for addr, ws in cluster.scheduler.workers.items() if ws.processing]
+        if busy:
+            pid = client.run(os.getpid, workers=[busy[0]])[busy[0]]
+            os.kill(pid, signal.SIGKILL)
+            return pid
+        time.sleep(0.01)
+    raise AssertionError("no worker was busy within 10 s")
+
+
 def test_worker_killed_mid_run_still_gives_every_result():
     items = [(v, 0.4) for v in range(12)]
     with new_cluster() as c, DaskRunner(c.scheduler_address) as runner:
@@ -145,12 +166,59 @@ def test_worker_killed_mid_run_still_gives_every_result():
         for index, result in runner.map_unordered(tasks.square_after, items):
             got[index] = result
             if victim is None:
-                # Both workers are busy now (window of 4 tasks, 0.4 s each): kill one of them.
-                victim = next(iter(runner.connect().run(os.getpid).values()))
-                os.kill(victim, signal.SIGKILL)
+                victim = kill_a_busy_worker(c, runner.connect())
         assert got == {i: v * v for i, (v, _) in enumerate(items)}
         # The scheduler saw a running task lose its worker and gave it to another.
         assert sum(p.suspicious for p in c.scheduler.task_prefixes.values()) >= 1
         # The nanny replaced the dead process.
         c.wait_for_workers(2, timeout=20)
         assert victim not in runner.connect().run(os.getpid).values()
+
+
+# A real sweep: the small generated set shared with tests/test_pipeline.py, on a reduced grid.
+GRID = Grid(cutoffs=(64, 20), subsamplings=("4:4:4", "4:2:0"))
+
+
+@pytest.fixture(scope="module")
+def sample(tmp_path_factory):
+    return discover(write_set(tmp_path_factory.mktemp("set")))
+
+
+@pytest.fixture(scope="module")
+def local_sweep(sample):
+    with LocalPoolRunner(workers=2) as pool:
+        return run_sweep(sample.jobs, sample.classes, grid=GRID, runner=pool)
+
+
+def as_uploads(jobs):
+    # What the web app sends: the file's bytes instead of a path the workers might not see.
+    return [replace(j, source=Path(j.source).read_bytes()) for j in jobs]
+
+
+def decisions(outcome):
+    return {k: v for k, v in outcome.document.items() if k != "created"}  # only the clock may differ
+
+
+def test_real_sweep_same_on_cluster_as_local_pool(cluster, sample, local_sweep):
+    with DaskRunner(cluster.scheduler_address) as runner:
+        remote = run_sweep(as_uploads(sample.jobs), sample.classes, grid=GRID, runner=runner)
+    chosen = [c["setting"] for c in local_sweep.document["classes"]]
+    assert len(chosen) == 2 and None not in chosen  # both classes decided: the comparison means something
+    assert remote.curves == local_sweep.curves
+    assert decisions(remote) == decisions(local_sweep)
+    assert remote.evaluated == local_sweep.evaluated > len(sample.jobs)  # coarse pass and refinement
+
+
+def test_real_sweep_survives_a_worker_killed_mid_run(sample, local_sweep):
+    with new_cluster() as c, DaskRunner(c.scheduler_address) as runner:
+        killed = []
+
+        def progress(done, total):
+            if done >= 1 and not killed:
+                killed.append(kill_a_busy_worker(c, runner.connect()))
+
+        remote = run_sweep(as_uploads(sample.jobs), sample.classes, grid=GRID, runner=runner, progress=progress)
+        assert killed
+        assert sum(p.suspicious for p in c.scheduler.task_prefixes.values()) >= 1
+    assert remote.curves == local_sweep.curves
+    assert decisions(remote) == decisions(local_sweep)
