@@ -46,6 +46,37 @@ SCHEDULER_ENV = "EIGHTFOLD_SCHEDULER"
 _POLL_S = 0.05
 
 
+# dask's nanny starts workers with MALLOC_TRIM_THRESHOLD_ set, which also switches off glibc's
+# sliding mmap threshold: every array above 128 kB is then a fresh mmap, page-faulted in and
+# unmapped again, and a 1 MP image took 2-3x as long, most of it in the kernel (measured here).
+# Serving arrays up to 32 MB (glibc's own upper bound for the sliding threshold) from the heap
+# restores the usual behaviour; dask's trimming of freed memory stays as it is.
+_M_MMAP_THRESHOLD = -3  # glibc <malloc.h>
+_MMAP_THRESHOLD_BYTES = 32 * 2**20
+_worker_tuned = False
+
+
+def _tune_worker_malloc() -> None:
+    global _worker_tuned
+    if _worker_tuned:
+        return
+    _worker_tuned = True
+    if "MALLOC_TRIM_THRESHOLD_" not in os.environ or "MALLOC_MMAP_THRESHOLD_" in os.environ:
+        return  # glibc's sliding threshold is still on, or the user chose a threshold
+    try:
+        libc = ctypes.CDLL("libc.so.6")
+        libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_THRESHOLD_BYTES)
+    except (OSError, AttributeError):
+        pass  # not glibc: nothing to undo
+
+
+def _dask_call(fn, item):
+    """What a dask worker runs for one item: ``fn(item)`` after a one-off allocator fix (the
+    nanny already limits BLAS/OpenMP threads)."""
+    _tune_worker_malloc()
+    return fn(item)
+
+
 # One native (BLAS/OpenMP) thread per worker process, as dask's nanny also sets for its workers:
 # N processes each running a multi-threaded OpenBLAS on N cores oversubscribe the machine, and
 # OpenBLAS's spinning threads then make every process many times slower (measured here: a 1 MP
@@ -59,8 +90,10 @@ _OPENBLAS_SETTERS = (
 )
 
 
-def _one_native_thread() -> None:
-    """Pool-worker initializer: limit BLAS/OpenMP to one thread unless the user chose otherwise."""
+def _init_pool_worker() -> None:
+    """Pool-worker initializer: the allocator fix (in case the environment carries dask's
+    setting), and one BLAS/OpenMP thread unless the user chose otherwise."""
+    _tune_worker_malloc()
     chosen = "OPENBLAS_NUM_THREADS" in os.environ
     for name in _THREAD_ENV:
         os.environ.setdefault(name, "1")  # read by libraries loaded from now on
@@ -252,7 +285,7 @@ class LocalPoolRunner(Runner):
                 raise RunnerError("this runner is closed")
             if self._pool is None:
                 pool = cf.ProcessPoolExecutor(
-                    max_workers=self.workers, mp_context=self._context, initializer=_one_native_thread
+                    max_workers=self.workers, mp_context=self._context, initializer=_init_pool_worker
                 )
                 # A worker that cannot even start (unimportable __main__, broken environment) would
                 # otherwise look like every item crashing its worker in turn.
@@ -466,7 +499,7 @@ class DaskRunner(Runner):
             while todo and len(inflight) < window:
                 index = todo.popleft()
                 future = client.submit(
-                    fn, items[index], key=f"{name}-{run_id}-{index}", retries=self.retries, pure=False
+                    _dask_call, fn, items[index], key=f"{name}-{run_id}-{index}", retries=self.retries, pure=False
                 )
                 inflight[future] = index
                 completed.add(future)

@@ -57,3 +57,22 @@ def blas_threads(_: object = None) -> dict[str, int]:
                 out[os.path.basename(path)] = int(getter())
                 break
     return out
+
+
+def mmapped_bytes_for_array(nbytes: int) -> int:
+    """How much of an ``nbytes`` numpy array glibc served by mmap (``mallinfo2().hblkhd`` grows)."""
+    import ctypes
+
+    import numpy
+
+    class Mallinfo2(ctypes.Structure):
+        _fields_ = [(name, ctypes.c_size_t) for name in (
+            "arena", "ordblks", "smblks", "hblks", "hblkhd", "usmblks", "fsmblks", "uordblks", "fordblks", "keepcost")]
+
+    libc = ctypes.CDLL("libc.so.6")
+    libc.mallinfo2.restype = Mallinfo2
+    before = libc.mallinfo2().hblkhd
+    array = numpy.ones(nbytes, dtype=numpy.uint8)
+    during = libc.mallinfo2().hblkhd
+    del array
+    return int(during - before)

@@ -11,6 +11,7 @@ scheduler's per-prefix ``suspicious`` counter proves that a running task was rea
 
 from __future__ import annotations
 
+import contextlib
 import os
 import signal
 import socket
@@ -35,7 +36,20 @@ pytestmark = pytest.mark.slow
 ITEMS = [(v, 0.02) for v in (3, 0, 7, -2, 11, 5, -9, 2, 4, 6)]
 
 
+@contextlib.contextmanager
 def new_cluster(n_workers: int = 2):
+    # The nannies run in this process and leave their workers' settings (MALLOC_TRIM_THRESHOLD_,
+    # OMP/OPENBLAS/MKL_NUM_THREADS=1) in os.environ: put it back for the tests that follow.
+    saved = dict(os.environ)
+    try:
+        with _local_cluster(n_workers) as cluster:
+            yield cluster
+    finally:
+        os.environ.clear()
+        os.environ.update(saved)
+
+
+def _local_cluster(n_workers: int):
     return distributed.LocalCluster(
         n_workers=n_workers,
         processes=True,
@@ -78,6 +92,18 @@ def test_work_runs_on_the_workers(cluster):
         worker_pids = set(runner.connect().run(os.getpid).values())
     assert os.getpid() not in pids
     assert pids <= worker_pids and len(pids) == 2
+
+
+@pytest.mark.skipif(not hasattr(__import__("ctypes").CDLL(None), "mallinfo2"), reason="needs glibc >= 2.33")
+def test_workers_serve_big_arrays_from_the_heap(cluster):
+    # Reference: glibc's mallinfo2(). The nanny's MALLOC_TRIM_THRESHOLD_ pins the mmap threshold
+    # at 128 kB, so without the runner's fix a 4 MB array would be one fresh mmap.
+    with DaskRunner(cluster.scheduler_address) as runner:
+        client = runner.connect()
+        env = client.run(lambda: os.environ.get("MALLOC_TRIM_THRESHOLD_"))
+        assert set(env.values()) == {"65536"}  # dask's default: the situation the fix is for
+        got = collect(runner, tasks.mmapped_bytes_for_array, [4 * 2**20] * 4)
+    assert max(got.values()) == 0
 
 
 def test_identical_items_stay_separate(cluster):

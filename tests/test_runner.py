@@ -223,6 +223,29 @@ def test_blas_limited_even_when_numpy_loads_before_the_worker_starts(tmp_path):
     assert proc.stdout.strip() == "[1]", proc.stderr[-2000:]
 
 
+@pytest.mark.skipif(not hasattr(__import__("ctypes").CDLL(None), "mallinfo2"), reason="needs glibc >= 2.33")
+def test_pool_workers_keep_big_arrays_on_the_heap_under_dask_malloc_setting(tmp_path):
+    # Reference: glibc's mallinfo2(). MALLOC_TRIM_THRESHOLD_ (dask's nanny sets it, and leaves it
+    # in the environment of the process that hosts a LocalCluster) pins the mmap threshold at
+    # 128 kB; the pool's initializer restores heap allocation for arrays up to 32 MB.
+    script = tmp_path / "main_malloc.py"
+    script.write_text(
+        "from dct.runner import LocalPoolRunner\n"
+        "from tests import _runner_tasks as tasks\n"
+        "if __name__ == '__main__':\n"
+        "    with LocalPoolRunner(workers=2) as pool:\n"
+        "        print(max(r for _, r in pool.map_unordered(tasks.mmapped_bytes_for_array, [4 * 2**20] * 4)))\n"
+    )
+    env = {
+        **os.environ,
+        "PYTHONPATH": os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
+        "MALLOC_TRIM_THRESHOLD_": "65536",
+    }
+    env.pop("MALLOC_MMAP_THRESHOLD_", None)
+    proc = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, timeout=120, env=env)
+    assert proc.stdout.strip() == "0", proc.stderr[-2000:]
+
+
 def test_closed_runner_refuses_work():
     runner = LocalPoolRunner(workers=2)
     assert collect(runner, tasks.square_after, [(2, 0.0)]) == {0: 4}
