@@ -22,6 +22,7 @@ import multiprocessing
 import os
 import pickle
 import threading
+import time
 import traceback
 import uuid
 from collections import deque
@@ -44,6 +45,8 @@ SCHEDULER_ENV = "EIGHTFOLD_SCHEDULER"
 
 # How long a waiting loop sleeps before looking at the cancel event again.
 _POLL_S = 0.05
+# How often a dask run asks the scheduler how many worker threads there are now.
+_WORKERS_CHECK_S = 2.0
 
 
 # dask's nanny starts workers with MALLOC_TRIM_THRESHOLD_ set, which also switches off glibc's
@@ -461,9 +464,9 @@ class DaskRunner(Runner):
                     ) from exc
             return self._client
 
-    def _refresh_workers(self, client) -> int:
+    def _refresh_workers(self, client, *, wait: bool) -> None:
         nthreads = client.nthreads()
-        if not nthreads:
+        if not nthreads and wait:
             try:
                 client.wait_for_workers(1, timeout=self._worker_wait_s)
             except TimeoutError as exc:
@@ -474,16 +477,19 @@ class DaskRunner(Runner):
             nthreads = client.nthreads()
         self._nworkers = len(nthreads)
         self._nthreads = sum(nthreads.values())
-        return self._nthreads
 
     def map_unordered(self, fn, items, *, cancel=None):
         _check_call(fn, cancel)
         items = list(items)
         client = self.connect()
-        threads = self._refresh_workers(client)
-        return self._run(client, fn, items, cancel, window=max(4, 2 * threads))
+        self._refresh_workers(client, wait=True)
+        return self._run(client, fn, items, cancel)
 
-    def _run(self, client, fn, items, cancel, *, window):
+    def _window(self) -> int:
+        # Two tasks per worker thread: one running, one ready to start the moment it finishes.
+        return max(4, 2 * (self._nthreads or 0))
+
+    def _run(self, client, fn, items, cancel):
         from distributed import as_completed
 
         # Explicit unique keys: identical items (same bytes twice) must still be two tasks.
@@ -496,7 +502,7 @@ class DaskRunner(Runner):
         def submit_more() -> None:
             # A window, not the whole list: uploads carry file bytes, and the scheduler holds
             # every submitted task's arguments until it runs.
-            while todo and len(inflight) < window:
+            while todo and len(inflight) < self._window():
                 index = todo.popleft()
                 future = client.submit(
                     _dask_call, fn, items[index], key=f"{name}-{run_id}-{index}", retries=self.retries, pure=False
@@ -506,15 +512,21 @@ class DaskRunner(Runner):
 
         try:
             submit_more()
+            checked = time.monotonic()
             while inflight:
                 if cancel is not None and cancel.is_set():
                     return
+                if todo and time.monotonic() - checked > _WORKERS_CHECK_S:
+                    # Workers may join (or leave) mid-run: keep every thread fed.
+                    self._refresh_workers(client, wait=False)
+                    checked = time.monotonic()
+                    submit_more()
                 batch = completed.next_batch(block=False)
                 if not batch:
                     if cancel is not None:
                         cancel.wait(_POLL_S)
                     else:
-                        threading.Event().wait(_POLL_S)
+                        time.sleep(_POLL_S)
                     continue
                 for future in batch:
                     index = inflight.pop(future)

@@ -184,6 +184,20 @@ def kill_a_busy_worker(cluster, client) -> int:
     raise AssertionError("no worker was busy within 10 s")
 
 
+def test_workers_joining_mid_run_get_work():
+    with new_cluster(n_workers=1) as c, DaskRunner(c.scheduler_address) as runner:
+        pids, seen_descriptions = [], set()
+        for i, (index, pid) in enumerate(runner.map_unordered(tasks.pid_after, [0.3] * 30)):
+            pids.append(pid)
+            seen_descriptions.add(runner.description)
+            if i == 0:
+                c.scale(3)
+        assert len(pids) == 30
+        assert len(set(pids)) == 3  # the two new workers took part
+        # The runner noticed them (and so widened what it keeps in flight) during the run.
+        assert f"dask scheduler {c.scheduler_address}, 3 workers (3 threads)" in seen_descriptions
+
+
 def test_worker_killed_mid_run_still_gives_every_result():
     items = [(v, 0.4) for v in range(12)]
     with new_cluster() as c, DaskRunner(c.scheduler_address) as runner:
