@@ -7,8 +7,8 @@ file of the sample set could be used; 2 for bad options (click's usage errors); 
 
 from __future__ import annotations
 
+import dataclasses
 import json
-import os
 import sys
 import threading
 from dataclasses import replace
@@ -73,6 +73,7 @@ def main():
 @click.option("--classes", "classes_file", type=click.Path(exists=True, dir_okay=False, path_type=Path), help="classes.toml (default: SAMPLE_DIR/classes.toml if present).")
 @click.option("--json", "json_out", type=click.Path(dir_okay=False, path_type=Path), help="Write the result document here ('-' for stdout).")
 @click.option("--csv", "csv_out", type=click.Path(dir_okay=False, path_type=Path), help="Write one CSV row per class here.")
+@click.option("--curves", "curves_out", type=click.Path(dir_okay=False, path_type=Path), help="Save every image's curves, for 'eightfold decide'.")
 @click.option("--verify", is_flag=True, help="Re-encode every image at its chosen setting with Pillow and report actual bytes and SSIM.")
 @click.option("--workers", type=click.IntRange(1, None), help="Local worker processes [default: all cores].")
 @click.option("--scheduler", help="Run on a dask.distributed scheduler, e.g. tcp://HOST:8786.")
@@ -84,7 +85,7 @@ def main():
 @click.option("--no-cache", is_flag=True, help="Do not read or write the result cache.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_quality, current_subsampling,
-          classes_file, json_out, csv_out, verify, workers, scheduler, qualities, cutoffs, subsamplings,
+          classes_file, json_out, csv_out, curves_out, verify, workers, scheduler, qualities, cutoffs, subsamplings,
           no_refine, cache_dir, no_cache, quiet):
     """Sweep SAMPLE_DIR (one sub-folder per class) and print each class's cheapest setting."""
     from tqdm import tqdm
@@ -154,6 +155,9 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
             json_out.write_text(text + "\n", encoding="utf-8")
     if csv_out is not None:
         csv_out.write_text(report.document_to_csv(doc), encoding="utf-8")
+    if curves_out is not None:
+        classes = {n: dataclasses.asdict(s) for n, s in sample.classes.items()}
+        curves_out.write_text(json.dumps({"classes": classes, **outcome.curves}) + "\n", encoding="utf-8")
     if str(json_out) != "-":
         click.echo(report.format_table(doc))
         click.echo(
@@ -162,6 +166,43 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
         )
     if not doc["classes"]:
         sys.exit(EXIT_NOTHING_USABLE)
+    if any(c["setting"] is None for c in doc["classes"]):
+        sys.exit(EXIT_UNMET)
+
+
+@main.command()
+@click.argument("curves_file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
+@click.option("--target-ssim", type=float, callback=_unit_interval, help="New luma SSIM target for every class.")
+@click.option("--coverage", type=float, callback=_unit_interval, help="New coverage for every class.")
+@click.option("--chroma-floor", type=float, callback=_floor)
+@click.option("--local-floor", type=float, callback=_floor)
+@click.option("--json", "json_out", type=click.Path(dir_okay=False, path_type=Path), help="Write the document here ('-' for stdout).")
+def decide(curves_file, target_ssim, coverage, chroma_floor, local_floor, json_out):
+    """Decide again from curves saved by 'eightfold sweep --curves', with new targets (no encoding).
+
+    Only the settings the sweep evaluated are candidates: run the sweep again (its cache makes that
+    cheap) for a search refined around the new targets.
+    """
+    from .pipeline import redecide
+    from .sampleset import ClassSpec
+
+    try:
+        saved = json.loads(curves_file.read_text(encoding="utf-8"))
+        overrides = {k: v for k, v in dict(target_ssim=target_ssim, coverage=coverage, chroma_floor=chroma_floor,
+                                           local_floor=local_floor).items() if v is not None}
+        classes = {}
+        for name, d in saved["classes"].items():
+            d = dict(d, widths=tuple(d["widths"]), background=tuple(d["background"]))
+            classes[name] = dataclasses.replace(ClassSpec(**d), **overrides)
+        doc = redecide(saved, classes)
+    except (ValueError, KeyError, TypeError) as exc:
+        raise click.ClickException(f"{curves_file} is not a curves file from 'eightfold sweep --curves': {exc}")
+    if json_out is not None and str(json_out) != "-":
+        json_out.write_text(json.dumps(doc, indent=2) + "\n", encoding="utf-8")
+    if str(json_out) == "-":
+        click.echo(json.dumps(doc, indent=2))
+    else:
+        click.echo(report.format_table(doc))
     if any(c["setting"] is None for c in doc["classes"]):
         sys.exit(EXIT_UNMET)
 

@@ -113,3 +113,22 @@ def test_bad_options(tmp_path, args, message):
     result = CliRunner().invoke(main, ["sweep", str(root), "--no-cache", "--quiet", *args])
     assert result.exit_code in (1, 2)
     assert message in result.output
+
+
+def test_decide_again_from_saved_curves(tmp_path):
+    root = write_set(tmp_path / "set", flat=2, photo=2)
+    curves = tmp_path / "curves.json"
+    first = run(["sweep", str(root), "--curves", str(curves), "--json", str(tmp_path / "a.json"), "--no-cache", *FAST])
+    assert first.exit_code == 0, first.output
+    same = run(["decide", str(curves), "--json", str(tmp_path / "b.json")])
+    a, b = (json.loads((tmp_path / n).read_text()) for n in ("a.json", "b.json"))
+    assert [c["setting"] for c in a["classes"]] == [c["setting"] for c in b["classes"]]
+    stricter = run(["decide", str(curves), "--target-ssim", "0.98", "--json", "-"])
+    doc = json.loads(stricter.output)
+    for new, old in zip(doc["classes"], a["classes"]):
+        assert new["target_ssim"] == 0.98
+        assert new["setting"] is None or new["estimated_bytes"] >= old["estimated_bytes"]
+    broken = tmp_path / "x.json"
+    broken.write_text("{}")
+    result = CliRunner().invoke(main, ["decide", str(broken)])
+    assert result.exit_code == 1 and "is not a curves file" in result.output
