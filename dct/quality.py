@@ -74,20 +74,22 @@ def _rows_with_halo(plane: np.ndarray, start: int, stop: int) -> np.ndarray:
     return core
 
 
-def _filter_strip(rows: np.ndarray, out_rows: int) -> np.ndarray:
+def _filter_strip(rows: np.ndarray, out_rows: int, step: int = 1) -> np.ndarray:
     """Gaussian-filter a stack of row strips that carry an r-row halo.
 
     Parameters
     ----------
     rows : ndarray, shape (n, out_rows + 2r, W), float32
     out_rows : int
+    step : int
+        Keep every ``step``-th output row and column only (1 or a divisor of STRIP).
 
     Returns
     -------
-    ndarray, shape (n, out_rows, W), float32
+    ndarray, shape (n, ceil(out_rows / step), ceil(W / step)), float32
     """
     n, _, w = rows.shape
-    vertical = _band(out_rows) @ rows  # (n, out_rows, W): one GEMM per plane of the stack
+    vertical = _band(out_rows)[::step] @ rows  # one GEMM per plane of the stack
     # Horizontal pass: cut the mirrored rows into overlapping (tile + 2r)-wide windows, one per
     # output tile, and run them all through a single GEMM with the band matrix.
     tiles = -(-w // STRIP)
@@ -96,8 +98,8 @@ def _filter_strip(rows: np.ndarray, out_rows: int) -> np.ndarray:
     if extra:
         padded = np.pad(padded, ((0, 0), (0, 0), (0, extra)), mode="edge")
     windows = np.lib.stride_tricks.sliding_window_view(padded, STRIP + 2 * RADIUS, axis=2)[:, :, ::STRIP]
-    out = windows.reshape(-1, STRIP + 2 * RADIUS) @ _band(STRIP).T
-    return out.reshape(n, out_rows, tiles * STRIP)[:, :, :w]
+    out = windows.reshape(-1, STRIP + 2 * RADIUS) @ _band(STRIP).T[:, ::step]
+    return out.reshape(n, vertical.shape[1], tiles * STRIP // step)[:, :, : -(-w // step)]
 
 
 def gaussian_filter(image: np.ndarray) -> np.ndarray:
@@ -117,9 +119,14 @@ class ReferenceStats:
     ----------
     reference : ndarray, shape (H, W)
         Samples on the 0..255 scale (uint8 or float).
+    step : int
+        1 computes the SSIM map at every pixel. 2 computes it at every other row and column only
+        and averages those samples: the 11x11 window makes the map smooth at that scale, so the mean
+        moves by well under 1e-3 (tests/test_quality.py) for a quarter of the work. Eightfold uses 2
+        for the chroma planes; luma SSIM, its map and the local statistic always use 1.
     """
 
-    def __init__(self, reference: np.ndarray):
+    def __init__(self, reference: np.ndarray, *, step: int = 1):
         ref = np.asarray(reference)
         if ref.ndim != 2:
             raise ValueError(f"reference must be a 2-D plane, got shape {ref.shape!r}")
@@ -128,16 +135,21 @@ class ReferenceStats:
                 f"SSIM needs a plane of at least {2 * RADIUS + 1}x{2 * RADIUS + 1} pixels for its 11x11 "
                 f"window, got {ref.shape[1]}x{ref.shape[0]}"
             )
+        if step not in (1, 2, 4):
+            raise ValueError(f"step must be 1, 2 or 4, got {step!r}")
         self.shape = ref.shape
+        # Small planes are cheap, and sampling would leave too few interior pixels: use them all.
+        self.step = step = step if min(ref.shape) >= 64 else 1
         # The plane itself is kept by reference (no copy); level-shifted strips are made on the fly.
         self.plane = ref if ref.dtype == np.float32 else ref.astype(np.float32)
-        self.mean = np.empty(ref.shape, dtype=np.float32)  # mu_x
-        self.var = np.empty(ref.shape, dtype=np.float32)  # sigma_x^2
+        sampled = (-(-ref.shape[0] // step), -(-ref.shape[1] // step))
+        self.mean = np.empty(sampled, dtype=np.float32)  # mu_x at the sampled pixels
+        self.var = np.empty(sampled, dtype=np.float32)  # sigma_x^2
         for s, e in self._strips():
             rows = _rows_with_halo(self.plane, s, e) - 128.0
-            f = _filter_strip(np.stack([rows, rows * rows]), e - s)
-            self.mean[s:e] = f[0] + 128.0
-            self.var[s:e] = f[1] - f[0] * f[0]
+            f = _filter_strip(np.stack([rows, rows * rows]), e - s, step)
+            self.mean[s // step : -(-e // step)] = f[0] + 128.0
+            self.var[s // step : -(-e // step)] = f[1] - f[0] * f[0]
 
     def _strips(self):
         h = self.shape[0]
@@ -151,43 +163,51 @@ class ReferenceStats:
         ----------
         distorted : ndarray, shape (H, W), on the 0..255 scale
         want_map : bool
-            Also return the full SSIM map (H, W), float32.
+            Also return the full SSIM map (H, W), float32 (``step`` 1 only).
         """
         y = np.asarray(distorted, dtype=np.float32)
         if y.shape != self.shape:
             raise ValueError(f"distorted plane has shape {y.shape!r}, the reference {self.shape!r}")
+        step = self.step
+        if want_map and step != 1:
+            raise ValueError("the SSIM map needs step=1")
         h, w = self.shape
         ssim_map = np.empty(self.shape, dtype=np.float32) if want_map else None
-        total = 0.0
+        # Interior samples (the mean excludes a RADIUS-wide border, as scikit-image crops).
+        first = -(-RADIUS // step)
+        col0, col1 = first, -(-(w - RADIUS) // step)
+        total, count = 0.0, 0
         tiles = []
         sq_err = 0.0
         for s, e in self._strips():
             rows = _rows_with_halo(y, s, e) - 128.0
             xs = _rows_with_halo(self.plane, s, e) - 128.0
-            f = _filter_strip(np.stack([rows, rows * rows, xs * rows]), e - s)
+            f = _filter_strip(np.stack([rows, rows * rows, xs * rows]), e - s, step)
             uys, yy, xy = f[0], f[1], f[2]
-            ux = self.mean[s:e]
+            lo, hi = s // step, -(-e // step)
+            ux = self.mean[lo:hi]
             uxs = ux - 128.0
             uy = uys + 128.0
             vy = yy - uys * uys
             vxy = xy - uxs * uys
             num = (2.0 * ux * uy + C1) * (2.0 * vxy + C2)
-            den = (ux * ux + uy * uy + C1) * (self.var[s:e] + vy + C2)
-            strip = num / den
+            den = (ux * ux + uy * uy + C1) * (self.var[lo:hi] + vy + C2)
+            strip = num / den  # eq. (13) at the sampled pixels of rows s..e
             if ssim_map is not None:
                 ssim_map[s:e] = strip
-            # Mean over the interior, excluding a RADIUS-wide border (as scikit-image crops).
-            r0, r1 = max(s, RADIUS), min(e, h - RADIUS)
+            r0, r1 = max(lo, first), min(hi, -(-(h - RADIUS) // step))
             if r1 > r0:
-                total += float(strip[r0 - s : r1 - s, RADIUS : w - RADIUS].sum(dtype=np.float64))
-            tiles.append(_tile_means(strip))
+                inner = strip[r0 - lo : r1 - lo, col0:col1]
+                total += float(inner.sum(dtype=np.float64))
+                count += inner.size
+            if step == 1:
+                tiles.append(_tile_means(strip))
             d = (y[s:e] - self.plane[s:e]).ravel()
             sq_err += float(np.dot(d, d))
-        interior = (h - 2 * RADIUS) * (w - 2 * RADIUS)
-        tile_means = np.concatenate(tiles, axis=0)
+        tile_means = np.concatenate(tiles, axis=0) if tiles else None
         return SsimResult(
-            ssim=total / interior,
-            local=float(np.percentile(tile_means, LOCAL_PERCENTILE)),
+            ssim=total / count,
+            local=float(np.percentile(tile_means, LOCAL_PERCENTILE)) if tile_means is not None else math.nan,
             psnr=psnr_from_mse(sq_err / (h * w)),
             ssim_map=ssim_map,
             tile_means=tile_means,

@@ -34,6 +34,8 @@ _ZZ = tuple(int(i) for i in ZIGZAG)
 # DCT lands a few ulps either side of them, so a small bias restores libjpeg's round-half-up.
 _TIE_BIAS = 1e-4
 MIN_SIDE = 2 * quality.RADIUS + 1  # SSIM's 11x11 window must fit
+# Chroma SSIM samples its (smooth) map at every other pixel: a quarter of the work; see quality.py.
+CHROMA_SSIM_STEP = 2
 
 
 def _check_pixels(rgb) -> np.ndarray:
@@ -231,7 +233,10 @@ class PreparedImage:
 
     def _chroma_reference(self) -> tuple[quality.ReferenceStats, quality.ReferenceStats]:
         if self._chroma_ref is None:
-            self._chroma_ref = (quality.ReferenceStats(self._planes[1]), quality.ReferenceStats(self._planes[2]))
+            self._chroma_ref = (
+                quality.ReferenceStats(self._planes[1], step=CHROMA_SSIM_STEP),
+                quality.ReferenceStats(self._planes[2], step=CHROMA_SSIM_STEP),
+            )
         return self._chroma_ref
 
     # -- per setting -------------------------------------------------------------------------

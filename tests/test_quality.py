@@ -81,3 +81,14 @@ def test_worst_regions_find_planted_damage():
 def test_too_small_for_the_window():
     with pytest.raises(ValueError, match="at least 11x11 pixels"):
         quality.ReferenceStats(np.zeros((10, 40)))
+
+
+@pytest.mark.parametrize("pair", list(distorted_pairs()), ids=["noise", "blur", "contrast", "posterize"])
+def test_sampled_map_mean_is_close_to_the_full_mean(pair):
+    # step=2 averages the SSIM map at every other row and column; the 11x11 window keeps the map
+    # smooth, so the mean stays within 1e-3 of scikit-image's full-map mean.
+    x, y = pair
+    sampled = quality.ReferenceStats(x, step=2).compare(y)
+    assert abs(sampled.ssim - skimage_ssim(x, y)) < 1e-3
+    with pytest.raises(ValueError, match="the SSIM map needs step=1"):
+        quality.ReferenceStats(x, step=2).compare(y, want_map=True)
