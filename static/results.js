@@ -9,7 +9,7 @@
     const open = btn.getAttribute("aria-expanded") === "true";
     row.hidden = open;
     btn.setAttribute("aria-expanded", String(!open));
-    btn.textContent = open ? "Images ▸" : "Images ▾";
+    btn.textContent = btn.textContent.replace(open ? "▾" : "▸", open ? "▸" : "▾");
     if (open) e.stopImmediatePropagation();  // closing must not reload the rows
   }, true);
 })();

@@ -74,12 +74,16 @@ def worst_images(document: dict, entry: dict, count: int = 3):
 def page_context(db, role, snapshot, budget, *, error=None, error_class=None, form=None):
     document = snapshot["document"]
     trail = store.signoffs_for(db, snapshot["view_token"])
+    sweep = store.get_sweep(db, budget["sweep_id"])
+    curves = (sweep or {}).get("curves")
     ctx = {
         "role": role, "snapshot": snapshot, "budget": budget, "doc": document, "params": snapshot["params"],
         "classes": class_names(document), "trail": trail, "verdicts": verdicts(trail),
         "totals": results.totals(document), "chart": results.chart, "error": error,
         "error_class": error_class, "form": form or {}, "token": request.view_args["token"],
         "worst_of": lambda entry: worst_images(document, entry),
+        "saved_bytes": results.saved_bytes, "failures": results.image_failures,
+        "why_of": lambda entry: results.rejections(curves, snapshot["params"], entry),
     }
     if role == "edit":
         ctx["snapshots"] = store.list_snapshots(db, budget["edit_token"])
@@ -118,7 +122,8 @@ def signoff(token):
     store.add_signoff(db, snapshot["view_token"], **fields)
     if is_htmx():
         ctx = page_context(db, role, snapshot, budget)
-        return render_template("_partials/signoff_block.html", cls=fields["class_name"], **ctx)
+        # oob: the class's status badges (heading and overview) follow the new verdict
+        return render_template("_partials/signoff_block.html", cls=fields["class_name"], oob=True, **ctx)
     return redirect(url_for("budgets.show", token=token) + f"#class-{fields['class_name']}", code=303)
 
 

@@ -15,6 +15,7 @@ from flask import Response
 from webapp import store
 
 THUMB_WIDTH = 96
+HEAT_LOW = 0.5  # SSIM at which the heat-map is at full strength; the review page's key uses the same
 
 
 def _setting_key(setting: dict) -> str:
@@ -83,7 +84,7 @@ def heatmap_png(root, sha: str, width, setting: dict) -> bytes:
 
     return store.cached_render(
         root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat.png",
-        lambda: ssim_heatmap_png(ssim_map(root, sha, width, setting)),
+        lambda: ssim_heatmap_png(ssim_map(root, sha, width, setting), low=HEAT_LOW),
     )
 
 

@@ -24,18 +24,30 @@ SORTS = {
 }
 COLUMNS = [  # (sort key, heading, title)
     ("class", "Class", "image class (folder)"),
-    ("width", "Width", "delivery width"),
+    ("width", "Width", "delivery width in px; 'as uploaded' keeps each file's own width"),
     ("images", "Images", "images in the class"),
-    ("quality", "Quality", "chosen IJG quality factor"),
-    ("subsampling", "Chroma", "chosen chroma subsampling"),
-    ("cutoff", "Cutoff", "zigzag cutoff: coefficients kept per block"),
-    ("mean_kb", "Mean KB", "mean estimated size per image"),
-    ("total_kb", "Total KB", "estimated size of the whole class"),
-    ("bpp", "bpp", "bits per pixel"),
-    ("share", "Meeting", "share of images meeting the SSIM target"),
+    ("quality", "Quality", "chosen IJG quality factor (1-100): scales the quantization tables"),
+    ("cutoff", "Cutoff",
+     "zigzag cutoff: how many of the 64 DCT coefficients per 8x8 block are kept (64 = all); "
+     "fewer drops the finest detail"),
+    ("subsampling", "Chroma", "chroma subsampling: 4:4:4 keeps colour at full resolution, "
+     "4:2:0 halves it both ways"),
+    ("mean_kb", "Mean KB", "mean estimated size per image at the chosen setting (1 KB = 1000 bytes)"),
+    ("total_kb", "Total KB", "estimated size of the whole class at the chosen setting"),
+    ("bpp", "bpp", "bits per pixel at the chosen setting"),
+    ("share", "Meeting", "share of images that pass every check (SSIM target, chroma floor, local floor)"),
     ("worst", "Worst SSIM", "lowest SSIM in the class at the chosen setting"),
-    ("savings", "Saved", "bytes saved against the current default"),
+    ("savings", "Saved", "KB saved over the whole class against the current default, and the share of its bytes "
+     "(negative: costs more, because the default fails this class's checks)"),
 ]
+
+
+def saved_bytes(entry: dict):
+    """Bytes the chosen setting saves over the class against the current default (None if unknown)."""
+    chosen, current = entry.get("estimated_bytes"), entry.get("current_bytes")
+    if chosen is None or current is None:
+        return None
+    return current - chosen
 
 
 def check_sort(sort, direction):
@@ -67,6 +79,7 @@ def totals(document: dict) -> dict:
     return {
         "chosen_bytes": chosen,
         "current_bytes": current,
+        "saved_bytes": current - chosen,
         "savings": (1 - chosen / current) if current else None,
         "images": sum(e.get("image_count") or 0 for e in decided),
         "unmet": sorted({e["name"] for e in entries if not e.get("meets_target", True)}),
@@ -100,3 +113,100 @@ def chart(entry: dict, *, width: int = 420, height: int = 260):
     except Exception:  # a chart problem must not take the results page down with it
         log.exception("frontier chart failed for class %r", entry.get("name"))
         return None
+
+
+def image_failures(entry: dict, image: dict) -> list[str]:
+    """Which of the class's checks an image fails at the class's setting (empty: it passes).
+
+    Mirrors ``dct.budget.accepts``: luma SSIM against the target, Cb and Cr SSIM against the chroma
+    floor (colour images only), local SSIM against the local floor unless that floor is 0.
+    """
+    out = []
+    target = entry.get("target_ssim")
+    if target is not None and image.get("ssim") is not None and image["ssim"] < target:
+        out.append(f"SSIM < {target:g}")
+    floor = entry.get("chroma_floor")
+    chroma = [v for v in (image.get("ssim_cb"), image.get("ssim_cr")) if v is not None]
+    if floor is not None and chroma and min(chroma) < floor:
+        out.append(f"chroma < {floor:g}")
+    local = entry.get("local_floor")
+    if local and image.get("ssim_local") is not None and image["ssim_local"] < local:
+        out.append(f"local < {local:g}")
+    return out
+
+
+def rejections(curves, params: dict, entry: dict, *, limit: int = 5):
+    """Why the settings just cheaper than the chosen one, and the current default, were turned down.
+
+    Returns ``{"cheaper": [row, ...], "current": row | None, "checks": {...}}`` where a row is
+    ``{"setting", "bytes", "mean_bytes", "share", "passes", "fails": {"ssim", "chroma", "local"}}``;
+    ``cheaper`` holds up to ``limit`` rejected settings below the chosen one's bytes, most expensive
+    first (the nearest misses). ``None`` when the stored curves cannot answer it; this is an
+    explanation, so a problem here must never take a page down.
+    """
+    try:
+        return _rejections(curves, params, entry, limit)
+    except Exception:
+        log.exception("rejection summary failed for class %r", entry.get("name"))
+        return None
+
+
+def _rejections(curves, params, entry, limit):
+    if not curves or not curves.get("images"):
+        return None
+    from dct import budget
+    from dct.evaluate import ImageResult
+    from dct.pipeline import class_tables, targets_for
+    from dct.tables import Setting
+
+    from webapp import validation
+
+    spec = validation.class_specs(params).get(entry["name"])
+    if spec is None:
+        return None
+    targets = targets_for(spec)
+    results = [ImageResult.from_dict(d) for d in curves["images"]]
+    table = class_tables(results, entry["name"], entry.get("width"))
+    if not table:
+        return None
+    keys = sorted(table)
+    common = set.intersection(*(set(table[k]) for k in keys))
+
+    def row(setting):
+        measures = [table[k][setting] for k in keys]
+        fails = {"ssim": 0, "chroma": 0, "local": 0}
+        for m in measures:
+            if m.ssim + 1e-12 < targets.target_ssim:
+                fails["ssim"] += 1
+            if m.ssim_cb is not None and min(m.ssim_cb, m.ssim_cr) + 1e-12 < targets.effective_chroma_floor:
+                fails["chroma"] += 1
+            if targets.local_floor > 0 and m.ssim_local + 1e-12 < targets.local_floor:
+                fails["local"] += 1
+        summary = budget.summarize(setting, measures, targets)
+        return {"setting": setting.as_dict(), "bytes": summary.total_bytes,
+                "mean_bytes": summary.total_bytes / len(keys), "share": summary.share_accepting,
+                "passes": summary.qualifies, "fails": fails, "images": len(keys)}
+
+    chosen = entry.get("setting")
+    limit_bytes = entry.get("estimated_bytes")
+    cheaper = []
+    for setting in common:
+        r = row(setting)
+        if r["passes"] or (limit_bytes is not None and r["bytes"] >= limit_bytes):
+            continue
+        cheaper.append(r)
+    if limit_bytes is None:  # nothing qualifies: the closest misses first
+        cheaper.sort(key=lambda r: (-r["share"], r["bytes"]))
+    else:
+        cheaper.sort(key=lambda r: -r["bytes"])
+    current = None
+    if params.get("current"):
+        cur = Setting.from_dict(params["current"])
+        if cur in common:
+            current = row(cur)
+            current["chosen"] = bool(chosen) and Setting.from_dict(chosen) == cur
+    return {
+        "cheaper": cheaper[:limit], "cheaper_count": len(cheaper), "current": current,
+        "checks": {"ssim": targets.target_ssim, "chroma": targets.effective_chroma_floor,
+                   "local": targets.local_floor, "coverage": targets.coverage},
+    }

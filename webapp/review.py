@@ -6,10 +6,15 @@ own document. Pixels come from :mod:`webapp.imaging`, never the uploaded file it
 
 from __future__ import annotations
 
+import logging
+from urllib.parse import quote
+
 from flask import Blueprint, abort, render_template, url_for
+from markupsafe import Markup
 
 from webapp import imaging, results, store
 
+log = logging.getLogger(__name__)
 bp = Blueprint("review", __name__)
 
 
@@ -56,16 +61,36 @@ def crop_size(shape) -> int:
     return int(min(96, max(16, min(shape[0], shape[1]) // 2)))
 
 
-def _page(db, document, set_id, n, url):
+def heat_legend():
+    """The heat-map colour key (SVG markup), or None: a missing key must not take the page down."""
+    try:
+        from webapp.heatmap import ssim_legend_svg
+
+        return Markup(ssim_legend_svg(imaging.HEAT_LOW, width=260))
+    except Exception:
+        log.exception("heat-map key failed")
+        return None
+
+
+def _page(db, document, set_id, n, url, back_url, back_label):
     image, row, entry, setting, fallback = _image(db, document, set_id, n)
     root = store.data_dir()
     width = image.get("width")
     shape = imaging.pixels(root, row["sha256"], width).shape
     crops = imaging.worst_crops(root, row["sha256"], width, setting, size=crop_size(shape))
     count = len(document.get("images", []))
+    fails = results.image_failures(entry, image) if entry else []
+    failed = {key: any(f.startswith(word) for f in fails)
+              for key, word in (("ssim", "SSIM"), ("chroma", "chroma"), ("local", "local"))}
+    try:  # the file shown in the candidate pane (cached on disk; the pane requests the same bytes)
+        real_bytes = len(imaging.candidate_jpeg(root, row["sha256"], width, setting))
+    except Exception:
+        log.exception("candidate JPEG for %r failed", image.get("path"))
+        real_bytes = None
     return render_template(
         "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=count,
-        px_height=shape[0], px_width=shape[1], crops=crops,
+        px_height=shape[0], px_width=shape[1], crops=crops, fails_text=", ".join(fails), failed=failed,
+        real_bytes=real_bytes, legend=heat_legend(), back_url=back_url, back_label=back_label,
         prev_url=url(n - 1) if n > 0 else None, next_url=url(n + 1) if n + 1 < count else None,
         asset=lambda kind: url(n, kind),
     )
@@ -93,7 +118,7 @@ def sweep_review(sweep_id, n):
             return url_for("review.sweep_asset", sweep_id=sweep_id, n=i, kind=kind)
         return url_for("review.sweep_review", sweep_id=sweep_id, n=i)
 
-    return _page(db, document, set_id, n, url)
+    return _page(db, document, set_id, n, url, url_for("sweeps.show", sweep_id=sweep_id), "Back to the results")
 
 
 @bp.get(f"/sweeps/<sweep_id>/review/<int:n>/{ASSETS}")
@@ -111,7 +136,10 @@ def budget_review(token, n):
             return url_for("review.budget_asset", token=token, n=i, kind=kind)
         return url_for("review.budget_review", token=token, n=i)
 
-    return _page(db, document, set_id, n, url)
+    images = document.get("images", [])
+    anchor = f"#class-{quote(images[n]['class'])}" if 0 <= n < len(images) else ""
+    return _page(db, document, set_id, n, url, url_for("budgets.show", token=token) + anchor,
+                 "Back to the budget and sign-off")
 
 
 @bp.get(f"/budgets/<token>/review/<int:n>/{ASSETS}")

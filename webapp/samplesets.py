@@ -106,11 +106,23 @@ def apply_class_edits(db, set_id, form) -> None:
         store.update_image_classes(db, set_id, edits)
 
 
+def file_sizes(images) -> dict:
+    """{image id: bytes of the stored upload}; a missing blob is simply left out."""
+    root, out = store.data_dir(), {}
+    for im in images:
+        try:
+            out[im["id"]] = store.blob_path(root, im["sha256"]).stat().st_size
+        except OSError:
+            pass
+    return out
+
+
 def render_set(db, row, *, error=None, status=200, form=None):
     set_id = row["id"]
     current = form_current(form) if form is not None else dict(validation.DEFAULT_CURRENT)
+    images = store.set_images(db, set_id)
     return render_template(
-        "sampleset.html", s=row, images=store.set_images(db, set_id), rejected=store.set_rejected(db, set_id),
+        "sampleset.html", s=row, images=images, file_bytes=file_sizes(images), rejected=store.set_rejected(db, set_id),
         targets=target_rows(db, set_id, form), current=current, sweeps=store.sweeps_for_set(db, set_id),
         error=error,
     ), status

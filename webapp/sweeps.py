@@ -58,6 +58,7 @@ def results_context(sweep: dict, *, sort=None, direction=None, error=None, error
         "sweep": sweep, "doc": doc, "params": sweep["params"], "sort": sort, "dir": direction,
         "rows": results.sorted_rows(doc, sort, direction), "totals": results.totals(doc),
         "columns": results.COLUMNS, "error": error, "error_class": error_class, "chart": results.chart,
+        "saved_bytes": results.saved_bytes,
     }
 
 
@@ -152,7 +153,9 @@ def class_images(sweep_id, index):
     if not 0 <= index < len(classes):
         abort(404, description=f"no class entry {index!r} in this sweep")
     entry = classes[index]
-    return render_template("_partials/class_images.html", entry=entry, images=results.images_of(doc, entry),
+    return render_template("_partials/class_images.html", e=entry, images=results.images_of(doc, entry),
+                           why=results.rejections(sweep["curves"], sweep["params"], entry),
+                           failures=results.image_failures,
                            review_url=lambda n: url_for("review.sweep_review", sweep_id=sweep_id, n=n))
 
 

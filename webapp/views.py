@@ -27,9 +27,20 @@ def json_error(message: str, status: int, **extra):
 
 
 def kb(value) -> str:
+    """Bytes as KB (1 KB = 1000 bytes), one decimal, thousands separated."""
     if value is None:
         return "–"
     return f"{value / 1000:,.1f}"
+
+
+def kb_signed(value) -> str:
+    """A byte difference as signed KB: ``+12.3`` / ``−4.0`` (a real minus sign)."""
+    if value is None:
+        return "–"
+    text = f"{abs(value) / 1000:,.1f}"
+    if text.strip("0.,") == "":
+        return text
+    return ("+" if value > 0 else "\u2212") + text
 
 
 def pct(value, digits: int = 0) -> str:
@@ -45,9 +56,24 @@ def ssim(value) -> str:
 
 
 def setting_label(s) -> str:
+    """``q62 · k28 · 4:2:0``: the same order as the frontier charts' labels."""
     if not s:
         return "none"
-    return f"q{s['quality']} · {s['subsampling']} · k{s['cutoff']}"
+    return f"q{s['quality']} · k{s['cutoff']} · {s['subsampling']}"
+
+
+CHROMA_WORDS = {"4:4:4": "full-resolution colour", "4:2:2": "colour halved across",
+                "4:2:0": "colour halved both ways"}
+
+
+def setting_words(s) -> str:
+    """The long form of a setting for tooltips: what each part of ``q62 · k28 · 4:2:0`` means."""
+    if not s:
+        return "no setting"
+    cutoff = s["cutoff"]
+    kept = "all 64 DCT coefficients kept" if cutoff >= 64 else f"first {cutoff} of 64 zigzag coefficients kept"
+    chroma = CHROMA_WORDS.get(s["subsampling"], s["subsampling"])
+    return f"quality factor {s['quality']}; {kept}; chroma {s['subsampling']} ({chroma})"
 
 
 def width_label(w) -> str:
@@ -55,8 +81,8 @@ def width_label(w) -> str:
 
 
 def init_app(app) -> None:
-    app.jinja_env.filters.update(kb=kb, pct=pct, ssim=ssim, setting=setting_label, width=width_label,
-                                  fromjson=json.loads)
+    app.jinja_env.filters.update(kb=kb, kb_signed=kb_signed, pct=pct, ssim=ssim, setting=setting_label,
+                                  setting_words=setting_words, width=width_label, fromjson=json.loads)
     app.jinja_env.globals.update(htmx_file=HTMX_FILE, is_htmx=is_htmx)
 
     @app.errorhandler(HTTPException)
