@@ -37,13 +37,16 @@ def main():
         cells = []
         for f in floors:
             doc = redecide(out.curves, {n: replace(s, local_floor=f) for n, s in classes.items()})
-            c = next(c for c in doc["classes"] if c["name"] == name)
+            c = next((c for c in doc["classes"] if c["name"] == name), None)
+            if c is None:  # a class whose files were all rejected (e.g. the folder's README)
+                break
             if c["setting"] is None:
                 cells.append("none".ljust(28))
                 continue
             s = c["setting"]
             cells.append(f"q{s['quality']} k{s['cutoff']} {s['subsampling']} {c['mean_bytes'] / 1000:6.1f}".ljust(28))
-        print(name.ljust(14) + "".join(cells))
+        if cells:
+            print(name.ljust(14) + "".join(cells))
 
 
 if __name__ == "__main__":

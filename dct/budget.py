@@ -24,7 +24,7 @@ from .tables import Setting
 DEFAULT_TARGET_SSIM = 0.95
 DEFAULT_COVERAGE = 0.9
 # Calibrated on the demo set's screenshots and on photos (README, "Choosing the local floor").
-DEFAULT_LOCAL_FLOOR = 0.80
+DEFAULT_LOCAL_FLOOR = 0.85
 _EPS = 1e-12
 
 

@@ -262,3 +262,29 @@ def test_real_sweep_survives_a_worker_killed_mid_run(sample, local_sweep):
         assert sum(p.suspicious for p in c.scheduler.task_prefixes.values()) >= 1
     assert remote.curves == local_sweep.curves
     assert decisions(remote) == decisions(local_sweep)
+
+
+def test_web_app_sweeps_on_the_cluster_named_by_the_environment(tmp_path, monkeypatch):
+    # EIGHTFOLD_SCHEDULER sends the web app's sweeps to the cluster; the answer equals a local run.
+    from tests import test_web_sweeps as web
+
+    local = web.make_app(tmp_path / "local")
+    local_client = local.test_client()
+    set_id = web.upload(local_client)
+    sweep = local_client.post(f"/api/sample-sets/{set_id}/sweeps", json=web.REQUEST).get_json()["id"]
+    expected = web.wait_done(local_client, sweep)["result"]
+
+    with new_cluster() as fresh:  # a cluster of its own, so its task record is this test's alone
+        monkeypatch.setenv("EIGHTFOLD_SCHEDULER", fresh.scheduler_address)
+        remote = web.make_app(tmp_path / "remote", SWEEP_WORKERS=None)
+        client = remote.test_client()
+        set_id = web.upload(client)
+        sweep = client.post(f"/api/sample-sets/{set_id}/sweeps", json=web.REQUEST).get_json()["id"]
+        body = web.wait_done(client, sweep)
+        # The work really ran on the cluster: its scheduler has seen evaluate_image tasks.
+        with DaskRunner(fresh.scheduler_address) as runner:
+            prefixes = runner.connect().run_on_scheduler(lambda dask_scheduler: list(dask_scheduler.task_prefixes))
+    assert body["status"] == "done"
+    assert any(p.startswith("evaluate_image") for p in prefixes), prefixes
+    got = body["result"]
+    assert {k: v for k, v in got.items() if k != "created"} == {k: v for k, v in expected.items() if k != "created"}

@@ -7,10 +7,13 @@ finished per-image work survives a crash; on app start, sweeps left ``queued``/`
 
 from __future__ import annotations
 
+import dataclasses
 import logging
+import os
 import queue
 import threading
 import time
+from pathlib import Path
 
 from flask import current_app
 
@@ -113,7 +116,7 @@ class SweepWorker:
 
     def _sweep(self, conn, sweep: dict, event: threading.Event):
         from dct.pipeline import run_sweep
-        from dct.runner import make_runner
+        from dct.runner import SCHEDULER_ENV, make_runner
 
         from dct.sampleset import Rejection
 
@@ -127,7 +130,12 @@ class SweepWorker:
             store.update_progress(conn, sweep["id"], done, total)
 
         cache = store.SqliteResultCache(self.database)
-        runner = make_runner(workers=self.workers)
+        # EIGHTFOLD_SCHEDULER sends the work to a dask cluster, whose workers bring their own
+        # processes and cannot read this machine's blob store: they get the images as bytes.
+        scheduler = os.environ.get(SCHEDULER_ENV, "").strip() or None
+        runner = make_runner(workers=None if scheduler else self.workers, scheduler=scheduler)
+        if scheduler:
+            jobs = [dataclasses.replace(j, source=Path(j.source).read_bytes()) for j in jobs]
         try:
             kwargs = dict(current=current, runner=runner, progress=progress, cancel=event, cache=cache,
                           rejected=rejected)
