@@ -84,10 +84,17 @@ def dht_bytes(symbol_count: int) -> int:
     return 2 + 2 + 1 + 16 + symbol_count
 
 
+_CATEGORY = np.zeros(1 << 16, dtype=np.int32)
+for _k in range(1, 17):
+    _CATEGORY[1 << (_k - 1) : 1 << _k] = _k
+
+
 def magnitude_category(values: np.ndarray) -> np.ndarray:
     """SSSS of T.81 Table F.1 / F.2: the bit length of ``|v|`` (0 for 0), as int32."""
-    _, exponent = np.frexp(np.abs(values).astype(np.float64))
-    return exponent.astype(np.int32)
+    mags = np.abs(np.asarray(values, dtype=np.int64))
+    if mags.size and mags.max() >= _CATEGORY.size:
+        raise ValueError(f"coefficient magnitude {int(mags.max())} is beyond baseline JPEG's range")
+    return _CATEGORY[mags]
 
 
 @dataclass
@@ -115,7 +122,7 @@ def block_symbol_stats(blocks: np.ndarray) -> SymbolStats:
     blocks : ndarray, shape (N, 64), integer
         Quantized coefficients in zigzag order, blocks in coding order (DC prediction runs along it).
     """
-    blocks = np.asarray(blocks)
+    blocks = np.ascontiguousarray(blocks)
     n = blocks.shape[0]
     if n == 0:
         return SymbolStats(np.zeros(16, np.int64), np.zeros(256, np.int64), 0)
@@ -127,13 +134,13 @@ def block_symbol_stats(blocks: np.ndarray) -> SymbolStats:
     dc_counts = np.bincount(dc_cat, minlength=16)[:16].astype(np.int64)
     extra = int(dc_cat.sum())
 
-    # AC run/size symbols (F.1.2.2). Positions are 1..63 within each block.
-    ac = blocks[:, 1:]
-    rows, cols = np.nonzero(ac)
-    values = ac[rows, cols]
-    size = magnitude_category(values)
+    # AC run/size symbols (F.1.2.2). Positions are 1..63 within each block; on the contiguous
+    # (N, 64) array a flat index splits into block (>> 6) and position (& 63).
+    flat = np.flatnonzero(blocks)
+    flat = flat[(flat & 63) != 0]
+    rows, pos = flat >> 6, flat & 63
+    size = magnitude_category(blocks.ravel()[flat])
     extra += int(size.sum())
-    pos = cols + 1
     # The previous non-zero position in the same block (0 = the DC slot) gives the run length.
     prev = np.empty_like(pos)
     if pos.size:
@@ -146,7 +153,7 @@ def block_symbol_stats(blocks: np.ndarray) -> SymbolStats:
     ac_counts = np.bincount(((run & 15) << 4) | size, minlength=256).astype(np.int64)
     ac_counts[ZRL] += int((run >> 4).sum())
     # EOB unless the block's last non-zero coefficient sits at zigzag position 63.
-    ends_at_63 = int(np.count_nonzero(ac[:, 62]))
+    ends_at_63 = int(np.count_nonzero(blocks[:, 63]))
     ac_counts[EOB] += n - ends_at_63
     return SymbolStats(dc_counts, ac_counts, extra)
 

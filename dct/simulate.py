@@ -61,9 +61,9 @@ def _ceil_div(a: int, b: int) -> int:
 
 def _quantize(coefficients: np.ndarray, table_zigzag: np.ndarray) -> np.ndarray:
     """Round coefficients / Q to integers, ties away from zero. Returns int32, same shape."""
-    scaled = np.abs(coefficients) * (1.0 / table_zigzag.astype(np.float32))
-    q = np.floor(scaled + np.float32(0.5 + _TIE_BIAS)).astype(np.int32)
-    return np.where(coefficients < 0, -q, q)
+    scaled = coefficients * (1.0 / table_zigzag.astype(np.float32))
+    scaled += np.copysign(np.float32(0.5 + _TIE_BIAS), scaled)
+    return scaled.astype(np.int32)  # the cast truncates toward zero
 
 
 def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
