@@ -256,10 +256,16 @@ def _verify(doc, sample, runner, cache, quiet):
         }
 
 
+def _server_options(command):
+    """--host, --port and --data-dir, shared by serve and demo."""
+    command = click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path),
+                           help="Database and stored images [default: the instance folder].")(command)
+    command = click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535))(command)
+    return click.option("--host", default="127.0.0.1", show_default=True)(command)
+
+
 @main.command()
-@click.option("--host", default="127.0.0.1", show_default=True)
-@click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535))
-@click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path), help="Database and stored images [default: the instance folder].")
+@_server_options
 def serve(host, port, data_dir):
     """Start the web app on a production WSGI server (waitress)."""
     from webapp.server import serve as run
@@ -268,9 +274,7 @@ def serve(host, port, data_dir):
 
 
 @main.command()
-@click.option("--host", default="127.0.0.1", show_default=True)
-@click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535))
-@click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path), help="Database and stored images [default: the instance folder].")
+@_server_options
 def demo(host, port, data_dir):
     """Start the web app with the demo sample set loaded and its sweep running."""
     from webapp.server import serve as run

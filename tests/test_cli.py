@@ -132,3 +132,34 @@ def test_decide_again_from_saved_curves(tmp_path):
     broken.write_text("{}")
     result = CliRunner().invoke(main, ["decide", str(broken)])
     assert result.exit_code == 1 and "is not a curves file" in result.output
+
+
+def test_serve_starts_waitress_and_answers(tmp_path):
+    import socket
+    import subprocess
+    import sys
+    import time
+    import urllib.request
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        port = s.getsockname()[1]
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "dct.cli", "serve", "--port", str(port), "--data-dir", str(tmp_path / "data")],
+        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True,
+    )
+    try:
+        deadline = time.monotonic() + 60
+        while True:
+            try:
+                with urllib.request.urlopen(f"http://127.0.0.1:{port}/", timeout=2) as r:
+                    assert r.status == 200 and "Eightfold" in r.read().decode()
+                    break
+            except OSError:
+                assert proc.poll() is None, proc.stdout.read()
+                assert time.monotonic() < deadline, "server did not answer within 60 s"
+                time.sleep(0.3)
+        assert (tmp_path / "data" / "eightfold.sqlite3").exists()
+    finally:
+        proc.terminate()
+        proc.wait(timeout=20)
