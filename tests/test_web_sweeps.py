@@ -296,7 +296,7 @@ def test_review_serves_clean_original_and_real_candidate(swept):
     for c in crops:
         window = ssim_map[c["top"]:c["top"] + c["height"], c["left"]:c["left"] + c["width"]]
         assert c["ssim"] == pytest.approx(float(window.mean()), abs=1e-5)
-        assert f"local SSIM {c['ssim']:.4f}" in html
+        assert f"window SSIM {c['ssim']:.4f}" in html
 
     original = client.get(f"/sweeps/{sweep_id}/review/{n}/original.png")
     assert original.mimetype == "image/png"

@@ -15,7 +15,19 @@ from flask import Response
 from webapp import store
 
 THUMB_WIDTH = 96
-HEAT_LOW = 0.5  # SSIM at which the heat-map is at full strength; the review page's key uses the same
+DEFAULT_HEAT_LOW = 0.5
+
+
+def heat_low(target_ssim) -> float:
+    """The SSIM at which the heat-map reaches full strength, for a class target.
+
+    ``2 * target - 1`` puts the target in the middle of the colour ramp (0.95 -> 0.90), so the
+    overlay shows where an image is near or below its class's bar instead of fading out for every
+    setting good enough to ship; without a target the ramp runs down to 0.5.
+    """
+    if target_ssim is None:
+        return DEFAULT_HEAT_LOW
+    return round(min(0.98, max(DEFAULT_HEAT_LOW, 2.0 * float(target_ssim) - 1.0)), 4)
 
 
 def _setting_key(setting: dict) -> str:
@@ -79,12 +91,12 @@ def ssim_map(root, sha: str, width, setting: dict) -> np.ndarray:
     return np.load(io.BytesIO(data), allow_pickle=False)
 
 
-def heatmap_png(root, sha: str, width, setting: dict) -> bytes:
+def heatmap_png(root, sha: str, width, setting: dict, *, low: float = DEFAULT_HEAT_LOW) -> bytes:
     from webapp.heatmap import ssim_heatmap_png
 
     return store.cached_render(
-        root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat.png",
-        lambda: ssim_heatmap_png(ssim_map(root, sha, width, setting), low=HEAT_LOW),
+        root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat{low:.4f}.png",
+        lambda: ssim_heatmap_png(ssim_map(root, sha, width, setting), low=low),
     )
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import math
 
 from markupsafe import Markup
 
@@ -138,7 +139,8 @@ def image_failures(entry: dict, image: dict) -> list[str]:
 def rejections(curves, params: dict, entry: dict, *, limit: int = 5):
     """Why the settings just cheaper than the chosen one, and the current default, were turned down.
 
-    Returns ``{"cheaper": [row, ...], "current": row | None, "checks": {...}}`` where a row is
+    The checks are the ones the entry records (target, coverage, floors). Returns
+    ``{"cheaper": [row, ...], "cheaper_count", "current": row | None, "checks": {...}}`` where a row is
     ``{"setting", "bytes", "mean_bytes", "share", "passes", "fails": {"ssim", "chroma", "local"}}``;
     ``cheaper`` holds up to ``limit`` rejected settings below the chosen one's bytes, most expensive
     first (the nearest misses). ``None`` when the stored curves cannot answer it; this is an
@@ -156,15 +158,15 @@ def _rejections(curves, params, entry, limit):
         return None
     from dct import budget
     from dct.evaluate import ImageResult
-    from dct.pipeline import class_tables, targets_for
+    from dct.pipeline import class_tables
     from dct.tables import Setting
 
-    from webapp import validation
-
-    spec = validation.class_specs(params).get(entry["name"])
-    if spec is None:
-        return None
-    targets = targets_for(spec)
+    # The entry records the checks its decision used; reading them (not today's defaults) keeps the
+    # explanation true for documents made before a default changed.
+    targets = budget.Targets(target_ssim=entry["target_ssim"], coverage=entry["coverage"],
+                             chroma_floor=entry.get("chroma_floor"),
+                             local_floor=entry.get("local_floor") if entry.get("local_floor") is not None
+                             else budget.DEFAULT_LOCAL_FLOOR)
     results = [ImageResult.from_dict(d) for d in curves["images"]]
     table = class_tables(results, entry["name"], entry.get("width"))
     if not table:
@@ -208,5 +210,7 @@ def _rejections(curves, params, entry, limit):
     return {
         "cheaper": cheaper[:limit], "cheaper_count": len(cheaper), "current": current,
         "checks": {"ssim": targets.target_ssim, "chroma": targets.effective_chroma_floor,
-                   "local": targets.local_floor, "coverage": targets.coverage},
+                   "local": targets.local_floor, "coverage": targets.coverage, "images": len(keys),
+                   # as dct.budget counts it: at least ceil(coverage * n) images must pass
+                   "need": max(1, math.ceil(targets.coverage * len(keys) - 1e-9))},
     }

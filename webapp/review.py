@@ -61,12 +61,12 @@ def crop_size(shape) -> int:
     return int(min(96, max(16, min(shape[0], shape[1]) // 2)))
 
 
-def heat_legend():
+def heat_legend(low: float):
     """The heat-map colour key (SVG markup), or None: a missing key must not take the page down."""
     try:
         from webapp.heatmap import ssim_legend_svg
 
-        return Markup(ssim_legend_svg(imaging.HEAT_LOW, width=260))
+        return Markup(ssim_legend_svg(low, width=260))
     except Exception:
         log.exception("heat-map key failed")
         return None
@@ -90,20 +90,21 @@ def _page(db, document, set_id, n, url, back_url, back_label):
     return render_template(
         "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=count,
         px_height=shape[0], px_width=shape[1], crops=crops, fails_text=", ".join(fails), failed=failed,
-        real_bytes=real_bytes, legend=heat_legend(), back_url=back_url, back_label=back_label,
+        real_bytes=real_bytes, legend=heat_legend(imaging.heat_low((entry or {}).get("target_ssim"))), back_url=back_url, back_label=back_label,
         prev_url=url(n - 1) if n > 0 else None, next_url=url(n + 1) if n + 1 < count else None,
         asset=lambda kind: url(n, kind),
     )
 
 
 def _asset(db, document, set_id, n, kind):
-    image, row, _, setting, _ = _image(db, document, set_id, n)
+    image, row, entry, setting, _ = _image(db, document, set_id, n)
     root, width, sha = store.data_dir(), image.get("width"), row["sha256"]
     if kind == "original.png":
         return imaging.png_response(imaging.original_png(root, sha, width))
     if kind == "candidate.jpg":
         return imaging.jpeg_response(imaging.candidate_jpeg(root, sha, width, setting))
-    return imaging.png_response(imaging.heatmap_png(root, sha, width, setting))
+    low = imaging.heat_low((entry or {}).get("target_ssim"))
+    return imaging.png_response(imaging.heatmap_png(root, sha, width, setting, low=low))
 
 
 ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png'):kind>"

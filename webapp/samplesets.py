@@ -17,10 +17,19 @@ def uploaded_files():
     return [(f.filename, f.read()) for f in request.files.getlist("files") if f and (f.filename or "").strip()]
 
 
+def listed_sets(db) -> list[dict]:
+    """Stored sets for the home page, each with its latest sweep (or None) so results are one click away."""
+    out = []
+    for row in store.list_sets(db):
+        sweeps = store.sweeps_for_set(db, row["id"])
+        out.append({**dict(row), "latest": dict(sweeps[0]) if sweeps else None})
+    return out
+
+
 @bp.get("/")
 def home():
     db = store.get_db()
-    return render_template("home.html", sets=store.list_sets(db))
+    return render_template("home.html", sets=listed_sets(db))
 
 
 @bp.post("/sets")
@@ -28,14 +37,14 @@ def upload():
     files = uploaded_files()
     db = store.get_db()
     if not files:
-        return render_template("home.html", sets=store.list_sets(db),
+        return render_template("home.html", sets=listed_sets(db),
                                error="No files arrived: choose images or a folder first."), 400
     set_id, images, rejected, _ = ingest.ingest(
         db, store.data_dir(), files, max_files=current_app.config["MAX_FILES_PER_SET"]
     )
     if not images:
         store.delete_set(db, store.data_dir(), set_id)
-        return render_template("home.html", sets=store.list_sets(db), rejected=rejected,
+        return render_template("home.html", sets=listed_sets(db), rejected=rejected,
                                error="None of the files could be read as an image."), 422
     return redirect(url_for("samplesets.show", set_id=set_id), code=303)
 

@@ -44,9 +44,10 @@ def kb_signed(value) -> str:
 
 
 def pct(value, digits: int = 0) -> str:
+    """A fraction as a percentage; negatives get a real minus sign, like :func:`kb_signed`."""
     if value is None:
         return "–"
-    return f"{value * 100:.{digits}f}%"
+    return f"{value * 100:.{digits}f}%".replace("-", "\u2212")
 
 
 def ssim(value) -> str:
@@ -83,7 +84,9 @@ def width_label(w) -> str:
 def init_app(app) -> None:
     app.jinja_env.filters.update(kb=kb, kb_signed=kb_signed, pct=pct, ssim=ssim, setting=setting_label,
                                   setting_words=setting_words, width=width_label, fromjson=json.loads)
-    app.jinja_env.globals.update(htmx_file=HTMX_FILE, is_htmx=is_htmx)
+    from dct.budget import DEFAULT_LOCAL_FLOOR
+
+    app.jinja_env.globals.update(htmx_file=HTMX_FILE, is_htmx=is_htmx, default_local_floor=DEFAULT_LOCAL_FLOOR)
 
     @app.errorhandler(HTTPException)
     def http_error(exc: HTTPException):
