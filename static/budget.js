@@ -30,6 +30,6 @@
     }
   }, true);
   fillNames(document);
-  // htmx swaps in a fresh sign-off block after each sign-off
-  document.body.addEventListener("htmx:afterSwap", e => fillNames(e.target.parentNode || document));
+  // after each sign-off (an htmx swap) the other classes' empty name fields get the name too
+  document.body.addEventListener("htmx:afterSwap", () => fillNames(document));
 })();

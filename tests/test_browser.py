@@ -130,6 +130,17 @@ def test_upload_sweep_tune_freeze_share_signoff(server, browser, tmp_path):
     page.keyboard.press("h")
     assert "zoomed" in page.get_attribute("#viewer", "class")
     shot(page, "07-review-zoom-heat")
+    # on a phone-sized window the 2:1 panes scroll; "s" jumps to weak spot #1, and the panes move together
+    page.set_viewport_size({"width": 360, "height": 640})
+    page.keyboard.press("s")
+    assert page.locator("#viewer .spot-mark.active").count() == 2  # the spot is marked in both panes
+    page.evaluate("document.querySelectorAll('#viewer .frame')[0].scrollLeft = 50")
+    page.wait_for_function("(() => { const f = document.querySelectorAll('#viewer .frame');"
+                           " return f[0].scrollLeft > 0 && f[1].scrollLeft === f[0].scrollLeft; })()")
+    page.keyboard.press("0")
+    assert page.get_attribute("#viewer", "data-zoom") == "fit"
+    page.set_viewport_size({"width": 1360, "height": 900})
+    assert page.get_attribute("#back", "href") == f"/sweeps/{sweep_id}"
     page.go_back()
 
     page.wait_for_selector("#freeze")
@@ -150,6 +161,10 @@ def test_upload_sweep_tune_freeze_share_signoff(server, browser, tmp_path):
     card.locator("button", has_text="Sign off product").click()
     view.wait_for_selector("#class-product .trail >> text=Dana (design)")
     assert "needs work" in view.text_content("#class-product .trail")
+    # the class's status badges follow without a reload, and the name is kept for the next class
+    view.wait_for_selector("#class-product h2 .status:has-text('needs work')")
+    assert view.locator(".overview .status:has-text('needs work')").count() == 1
+    assert view.input_value("#class-hero input[name=name]") == "Dana (design)"
     shot(view, "09-share-signed")
 
     page.reload()
