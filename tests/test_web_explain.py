@@ -214,9 +214,21 @@ def test_review_page_back_link_marks_heat_key_and_real_size(swept):
         assert key in html
 
 
-def test_heat_low_puts_the_target_mid_ramp():
-    assert imaging.heat_low(0.95) == 0.9 and imaging.heat_low(0.99) == 0.98
+def test_heat_low_puts_the_target_a_third_along_the_ramp():
+    assert imaging.heat_low(0.95) == 0.85 and imaging.heat_low(0.97) == 0.91 and imaging.heat_low(0.999) == 0.98
     assert imaging.heat_low(0.6) == 0.5 and imaging.heat_low(None) == 0.5
+
+
+def test_heat_png_tolerates_float_rounding_above_one():
+    from webapp.heatmap import ssim_heatmap_png
+
+    # SSIM is bounded by 1 (Wang et al. 2004, its "boundedness" property; from memory); a float32 map
+    # of flat areas may overshoot by rounding
+    over = np.array([[0.2, 1.0002], [0.95, 1.0]], dtype=np.float32)
+    assert imaging.heat_png_from_map(over, low=0.9) == ssim_heatmap_png(np.clip(over, -1, 1), low=0.9,
+                                                                         max_alpha=imaging.HEAT_MAX_ALPHA)
+    with pytest.raises(ValueError):
+        ssim_heatmap_png(over, low=0.9)  # what the clip protects the page from
 
 
 def test_heat_png_uses_the_class_target(swept):
@@ -231,7 +243,7 @@ def test_heat_png_uses_the_class_target(swept):
     setting = entry["setting"] or doc["current"]  # an undecided class is reviewed at the current default
     ssim_map = imaging.ssim_map(app.config["DATA_DIR"], sha, im["width"], setting)
     heat = client.get(f"/sweeps/{sweep_id}/review/{n}/heat.png").data
-    assert heat == ssim_heatmap_png(ssim_map, low=2 * 0.97 - 1)
+    assert heat == ssim_heatmap_png(ssim_map, low=3 * 0.97 - 2, max_alpha=imaging.HEAT_MAX_ALPHA)
 
 
 def test_budget_review_goes_back_to_the_class_card(swept):

@@ -16,18 +16,19 @@ from webapp import store
 
 THUMB_WIDTH = 96
 DEFAULT_HEAT_LOW = 0.5
+HEAT_MAX_ALPHA = 176  # about 70 %: the designer still sees the pixels under the strongest colour
 
 
 def heat_low(target_ssim) -> float:
     """The SSIM at which the heat-map reaches full strength, for a class target.
 
-    ``2 * target - 1`` puts the target in the middle of the colour ramp (0.95 -> 0.90), so the
-    overlay shows where an image is near or below its class's bar instead of fading out for every
-    setting good enough to ship; without a target the ramp runs down to 0.5.
+    ``1 - 3 * (1 - target)`` (0.95 -> 0.85, 0.97 -> 0.91) puts the target a third of the way along
+    the colour ramp, so the overlay shows where an image is near or below its class's bar instead of
+    fading out for every setting good enough to ship; without a target the ramp runs down to 0.5.
     """
     if target_ssim is None:
         return DEFAULT_HEAT_LOW
-    return round(min(0.98, max(DEFAULT_HEAT_LOW, 2.0 * float(target_ssim) - 1.0)), 4)
+    return round(min(0.98, max(DEFAULT_HEAT_LOW, 3.0 * float(target_ssim) - 2.0)), 4)
 
 
 def _setting_key(setting: dict) -> str:
@@ -91,12 +92,22 @@ def ssim_map(root, sha: str, width, setting: dict) -> np.ndarray:
     return np.load(io.BytesIO(data), allow_pickle=False)
 
 
-def heatmap_png(root, sha: str, width, setting: dict, *, low: float = DEFAULT_HEAT_LOW) -> bytes:
+def heat_png_from_map(ssim_map_values: np.ndarray, *, low: float = DEFAULT_HEAT_LOW) -> bytes:
+    """The heat-map PNG of an SSIM map, after clipping it to [-1, 1].
+
+    SSIM cannot exceed 1, but a float32 map of flat areas can come out a hair above it (1.0001 seen
+    on the demo's screenshots), which the heat-map module rightly refuses; clip the rounding away.
+    """
     from webapp.heatmap import ssim_heatmap_png
 
+    return ssim_heatmap_png(np.clip(np.asarray(ssim_map_values, dtype=np.float32), -1.0, 1.0), low=low,
+                            max_alpha=HEAT_MAX_ALPHA)
+
+
+def heatmap_png(root, sha: str, width, setting: dict, *, low: float = DEFAULT_HEAT_LOW) -> bytes:
     return store.cached_render(
-        root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat{low:.4f}.png",
-        lambda: ssim_heatmap_png(ssim_map(root, sha, width, setting), low=low),
+        root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat{low:.4f}a{HEAT_MAX_ALPHA}.png",
+        lambda: heat_png_from_map(ssim_map(root, sha, width, setting), low=low),
     )
 
 

@@ -80,6 +80,7 @@ def _page(db, document, set_id, n, url, back_url, back_label):
     crops = imaging.worst_crops(root, row["sha256"], width, setting, size=crop_size(shape))
     count = len(document.get("images", []))
     fails = results.image_failures(entry, image) if entry else []
+    low = imaging.heat_low((entry or {}).get("target_ssim"))
     failed = {key: any(f.startswith(word) for f in fails)
               for key, word in (("ssim", "SSIM"), ("chroma", "chroma"), ("local", "local"))}
     try:  # the file shown in the candidate pane (cached on disk; the pane requests the same bytes)
@@ -90,7 +91,7 @@ def _page(db, document, set_id, n, url, back_url, back_label):
     return render_template(
         "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=count,
         px_height=shape[0], px_width=shape[1], crops=crops, fails_text=", ".join(fails), failed=failed,
-        real_bytes=real_bytes, legend=heat_legend(imaging.heat_low((entry or {}).get("target_ssim"))), back_url=back_url, back_label=back_label,
+        real_bytes=real_bytes, legend=heat_legend(low), heat_low=low, back_url=back_url, back_label=back_label,
         prev_url=url(n - 1) if n > 0 else None, next_url=url(n + 1) if n + 1 < count else None,
         asset=lambda kind: url(n, kind),
     )
