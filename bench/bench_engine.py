@@ -22,6 +22,7 @@ from threadpoolctl import threadpool_limits
 sys.path.insert(0, __file__.rsplit("/", 2)[0])
 
 import dct  # noqa: E402
+from dct.color import rgb_to_ycbcr  # noqa: E402
 from bench.common import Timer, brute_force_point, photo_mosaic  # noqa: E402
 
 MEMORY_CHILD = """
@@ -55,10 +56,12 @@ def main():
         with threadpool_limits(limits=1, user_api="blas"), Timer() as t_engine:
             points = dct.sweep(img, settings)  # one core, as each worker process runs it
         with Timer() as t_luma:
+            orig = rgb_to_ycbcr(img)
             for s in settings:
-                brute_force_point(img, s, chroma=False)
+                brute_force_point(img, s, chroma=False, orig=orig)
         with Timer() as t_all:
-            brute = [brute_force_point(img, s, chroma=True) for s in settings]
+            orig = rgb_to_ycbcr(img)
+            brute = [brute_force_point(img, s, chroma=True, orig=orig) for s in settings]
         d_ssim = max(abs(p.ssim - b["ssim"]) for p, b in zip(points, brute))
         d_bytes = max(abs(p.estimated_bytes - b["bytes"]) / b["bytes"] for p, b in zip(points, brute))
         row = dict(mp=h * w / 1e6, engine=t_engine.seconds, luma=t_luma.seconds, all=t_all.seconds)

@@ -42,11 +42,12 @@ def skimage_ssim(x, y) -> float:
     return structural_similarity(x, y, gaussian_weights=True, sigma=1.5, use_sample_covariance=False, data_range=255)
 
 
-def brute_force_point(rgb: np.ndarray, setting: Setting, *, chroma: bool = True) -> dict:
+def brute_force_point(rgb: np.ndarray, setting: Setting, *, chroma: bool = True, orig: np.ndarray | None = None) -> dict:
     """The brute-force way: Pillow encode (optimize=True) + decode + scikit-image SSIM.
 
     With ``chroma`` it also measures Cb and Cr SSIM (libjpeg's own upsampled planes), i.e. the same
-    outputs the engine gives; without, luma SSIM only.
+    outputs the engine gives; without, luma SSIM only. ``orig`` is the original's YCbCr planes,
+    converted once per image as a brute-force script would.
     """
     luma, chroma_t = setting.tables()
     buf = io.BytesIO()
@@ -56,7 +57,8 @@ def brute_force_point(rgb: np.ndarray, setting: Setting, *, chroma: bool = True)
     )
     data_bytes = buf.getvalue()
     decoded = np.asarray(Image.open(io.BytesIO(data_bytes)).convert("RGB"))
-    orig = rgb_to_ycbcr(rgb)
+    if orig is None:
+        orig = rgb_to_ycbcr(rgb)
     out = {"bytes": len(data_bytes), "ssim": skimage_ssim(orig[0], rgb_to_ycbcr(decoded)[0])}
     if chroma:
         im = Image.open(io.BytesIO(data_bytes))

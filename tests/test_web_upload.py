@@ -265,3 +265,14 @@ def test_too_large_upload_is_a_413_json_error(tmp_path):
     r = upload(app.test_client(), [("a.png", bytes(2 * 1024 * 1024))])
     assert r.status_code == 413
     assert r.get_json() == {"error": "upload too large: the limit is 1 MB per request"}
+
+
+def test_secret_key_is_random_per_data_dir_and_survives_restart(tmp_path):
+    from webapp import create_app
+
+    a = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "a"), "SWEEP_AUTORESUME": False})
+    again = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "a"), "SWEEP_AUTORESUME": False})
+    b = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "b"), "SWEEP_AUTORESUME": False})
+    assert len(a.config["SECRET_KEY"]) == 64 and a.config["SECRET_KEY"] != "dev"
+    assert a.config["SECRET_KEY"] == again.config["SECRET_KEY"] != b.config["SECRET_KEY"]
+    assert (tmp_path / "a" / "secret_key").stat().st_mode & 0o077 == 0

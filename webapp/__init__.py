@@ -29,7 +29,7 @@ def create_app(test_config=None):
         static_folder=str(STATIC_DIR),
     )
     app.config.from_mapping(
-        SECRET_KEY=os.environ.get("EIGHTFOLD_SECRET_KEY", "dev"),
+        SECRET_KEY=os.environ.get("EIGHTFOLD_SECRET_KEY"),
         DATA_DIR=os.environ.get("EIGHTFOLD_DATA_DIR") or app.instance_path,
         # Upload cap for one request; a sample set is a sample, not a whole site.
         MAX_CONTENT_LENGTH=512 * 1024 * 1024,
@@ -45,6 +45,8 @@ def create_app(test_config=None):
     data_dir.mkdir(parents=True, exist_ok=True)
     app.config["DATA_DIR"] = str(data_dir)
     app.config.setdefault("DATABASE", str(data_dir / "eightfold.sqlite3"))
+    if not app.config.get("SECRET_KEY"):
+        app.config["SECRET_KEY"] = _secret_key(data_dir)
 
     from webapp import store
 
@@ -63,3 +65,18 @@ def create_app(test_config=None):
 
     worker.init_app(app)
     return app
+
+
+def _secret_key(data_dir: Path) -> str:
+    """A random key kept in the data dir (owner-only), so signed cookies survive restarts."""
+    import secrets
+
+    path = data_dir / "secret_key"
+    try:
+        return path.read_text(encoding="ascii").strip()
+    except FileNotFoundError:
+        key = secrets.token_hex(32)
+        fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        with os.fdopen(fd, "w", encoding="ascii") as f:
+            f.write(key)
+        return key
