@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import io
 import threading
+import os
 from pathlib import Path
 
 import pytest
@@ -41,7 +42,10 @@ def server(tmp_path):
 @pytest.fixture
 def browser():
     if not Path(CHROMIUM).exists():
-        pytest.skip("Debian chromium is not installed (scripts/test.sh installs it)")
+        message = "Debian chromium is not installed (scripts/test.sh installs it)"
+        if os.environ.get("CI"):
+            pytest.fail(message)  # in CI a missing browser must not pass as a skip
+        pytest.skip(message)
     from playwright.sync_api import sync_playwright
 
     with sync_playwright() as p:
