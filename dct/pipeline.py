@@ -129,9 +129,7 @@ def class_tables(results: Iterable[ImageResult], class_name: str, width) -> dict
     return table
 
 
-def plan_refinement(
-    results: dict[str, ImageResult], classes: dict[str, ClassSpec], grid: Grid, current: Setting
-) -> dict[str, set[Setting]]:
+def plan_refinement(results: dict[str, ImageResult], classes: dict[str, ClassSpec], grid: Grid) -> dict[str, set[Setting]]:
     """Fine settings to evaluate per class, where the class's decision may lie (see module docstring)."""
     coarse = grid.coarse_qualities()
     fine = grid.sorted_qualities
@@ -228,7 +226,7 @@ def run_sweep(
         if cancel is not None and cancel.is_set():
             return _cancelled(counters)
         if refine:
-            plan = plan_refinement(results, classes, grid, current)
+            plan = plan_refinement(results, classes, grid)
             second = [
                 replace(j, settings=tuple(sorted(plan[j.class_name])))
                 for j in jobs
