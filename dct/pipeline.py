@@ -67,16 +67,22 @@ def _job_fingerprint(job: ImageJob) -> str:
 
 
 class _Progress:
-    def __init__(self, callback):
+    def __init__(self, callback, on_reused=None):
         self.callback = callback
+        self.on_reused = on_reused
         self.done = 0
         self.total = 0
+        self.reused = 0
 
     def grow(self, n: int):
         self.total += n
         self._report()
 
-    def step(self):
+    def step(self, *, reused: bool = False):
+        if reused:
+            self.reused += 1
+            if self.on_reused is not None:
+                self.on_reused(self.reused)
         self.done += 1
         self._report()
 
@@ -95,7 +101,7 @@ def _run_jobs(jobs, runner, cache, progress: _Progress, cancel, counters) -> dic
         if hit is not None:
             out[job.key] = ImageResult.from_dict(hit)
             counters["reused"] += 1
-            progress.step()
+            progress.step(reused=True)
         else:
             todo.append(job)
             prints.append(fp)
@@ -182,6 +188,7 @@ def run_sweep(
     grid: Grid = DEFAULT_GRID,
     runner=None,
     progress: Callable[[int, int], None] | None = None,
+    on_reused: Callable[[int], None] | None = None,
     cancel: threading.Event | None = None,
     cache: ResultCache | None = None,
     refine: bool = True,
@@ -202,6 +209,9 @@ def run_sweep(
         Where the work runs; by default a local process pool on all cores (closed afterwards).
     progress : callable(done, total), optional
         Called as image passes finish; ``total`` grows once when the refinement pass is planned.
+    on_reused : callable(count), optional
+        Called with the running count of passes taken from the cache (they count as done at once,
+        so a time-left estimate should leave them out).
     cancel : threading.Event, optional
         Stops the sweep early; the outcome then has ``cancelled=True`` and no decisions.
     cache : ResultCache, optional
@@ -217,7 +227,7 @@ def run_sweep(
     own_runner = runner is None
     runner = runner or make_runner()
     counters = {"evaluated": 0, "reused": 0}
-    tracker = _Progress(progress)
+    tracker = _Progress(progress, on_reused)
     coarse_settings = list(dict.fromkeys(grid.coarse_settings() + [current]))
     try:
         tracker.grow(len(jobs))

@@ -94,8 +94,11 @@ def test_cache_resumes_without_recomputing(sample, tmp_path):
     cache = DirectoryCache(tmp_path / "cache")
     first = run_sweep(sample.jobs, sample.classes, grid=GRID, runner=make_runner(workers=1), cache=cache)
     assert first.evaluated > 0 and first.reused == 0
-    again = run_sweep(sample.jobs, sample.classes, grid=GRID, runner=make_runner(workers=1), cache=cache)
+    counts = []
+    again = run_sweep(sample.jobs, sample.classes, grid=GRID, runner=make_runner(workers=1), cache=cache,
+                      on_reused=counts.append)
     assert again.evaluated == 0 and again.reused == first.evaluated
+    assert counts == list(range(1, again.reused + 1))
     assert chosen(again.document) == chosen(first.document)
 
 

@@ -421,3 +421,20 @@ def test_serve_demo_prints_the_live_page_and_starts_waitress(tmp_path, monkeypat
     assert app.config["DATA_DIR"] == str(tmp_path / "data")
     assert app.test_client().get(f"/api/sweeps/{sweep_id}").status_code == 200
     app.extensions["eightfold_worker"].stop()  # cancels the (full-grid) demo sweep
+
+
+def test_time_left_leaves_out_passes_reused_from_the_cache(tmp_path):
+    # 10 of 20 passes done in 10 s, 6 of them straight from the cache: the 4 computed ones set the
+    # rate (2.5 s each), so the 10 left take 25 s, not the 10 s a plain done/elapsed rate would say.
+    from webapp.sweeps import progress_info
+    from webapp.worker import get_worker
+
+    app = make_app(tmp_path / "eta", SWEEP_AUTORESUME=False)
+    with app.app_context():
+        db = store.get_db()
+        sweep = {"id": "s1", "status": "running", "started": time.time() - 10, "done": 10, "total": 20}
+        assert progress_info(db, sweep)["left"] == pytest.approx(10, rel=0.05)
+        get_worker()._reused["s1"] = 6
+        assert progress_info(db, sweep)["left"] == pytest.approx(25, rel=0.05)
+        get_worker()._reused["s1"] = 10  # nothing computed yet: no estimate rather than a wrong one
+        assert progress_info(db, sweep)["left"] is None

@@ -29,8 +29,10 @@ def progress_info(db, sweep: dict) -> dict:
     if sweep["status"] == "running" and sweep["started"]:
         elapsed = max(0.0, time.time() - sweep["started"])
         info["elapsed"] = elapsed
-        if done and total > done:
-            info["left"] = elapsed / done * (total - done)
+        # Passes reused from the result cache finished instantly; the rate comes from the others.
+        computed = done - get_worker().reused(sweep["id"])
+        if computed > 0 and total > done:
+            info["left"] = elapsed / computed * (total - done)
     if sweep["status"] == "queued":
         info["ahead"] = db.execute(
             "SELECT COUNT(*) FROM sweeps WHERE status IN ('queued', 'running') AND created < ?", (sweep["created"],)

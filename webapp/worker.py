@@ -31,6 +31,7 @@ class SweepWorker:
         self.grid = config.get("SWEEP_GRID")
         self._queue: queue.Queue = queue.Queue()
         self._cancel: dict[str, threading.Event] = {}
+        self._reused: dict[str, int] = {}  # passes of a running sweep taken from the result cache
         self._lock = threading.Lock()
         self._thread: threading.Thread | None = None
         self._stopping = threading.Event()
@@ -62,6 +63,10 @@ class SweepWorker:
         self._queue.put(None)
         if thread is not None:
             thread.join(timeout)
+
+    def reused(self, sweep_id: str) -> int:
+        """Passes of a running sweep that came from the result cache (0 when none or not running)."""
+        return self._reused.get(sweep_id, 0)
 
     def wait_idle(self, timeout: float = 120.0) -> bool:
         """Block until the queue is drained (tests)."""
@@ -112,6 +117,7 @@ class SweepWorker:
         finally:
             with self._lock:
                 self._cancel.pop(sweep_id, None)
+                self._reused.pop(sweep_id, None)
             conn.close()
 
     def _sweep(self, conn, sweep: dict, event: threading.Event):
@@ -129,6 +135,9 @@ class SweepWorker:
         def progress(done: int, total: int) -> None:
             store.update_progress(conn, sweep["id"], done, total)
 
+        def on_reused(count: int) -> None:
+            self._reused[sweep["id"]] = count
+
         cache = store.SqliteResultCache(self.database)
         # EIGHTFOLD_SCHEDULER sends the work to a dask cluster, whose workers bring their own
         # processes and cannot read this machine's blob store: they get the images as bytes.
@@ -137,8 +146,8 @@ class SweepWorker:
         if scheduler:
             jobs = [dataclasses.replace(j, source=Path(j.source).read_bytes()) for j in jobs]
         try:
-            kwargs = dict(current=current, runner=runner, progress=progress, cancel=event, cache=cache,
-                          rejected=rejected)
+            kwargs = dict(current=current, runner=runner, progress=progress, on_reused=on_reused, cancel=event,
+                          cache=cache, rejected=rejected)
             if self.grid is not None:
                 kwargs["grid"] = make_grid(self.grid)
             return run_sweep(jobs, classes, **kwargs)
