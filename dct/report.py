@@ -7,7 +7,7 @@ Document keys (stable; scripts, the web API and exports depend on them)::
                setting{quality,cutoff,subsampling} | null, quant_tables{luma,chroma} | null,
                meets_target, coverage_met, share_meeting, estimated_bytes, mean_bytes, bpp,
                ssim_min, ssim_at_coverage, current_bytes, savings_vs_current, chosen_point,
-               current_point, frontier[{quality,cutoff,subsampling,estimated_bytes,ssim}], message}],
+               current_point, frontier[{quality,cutoff,subsampling,estimated_bytes,ssim,qualifies}], message}],
     images: [{path, class, width, pixel_width, pixel_height, setting, estimated_bytes, ssim,
               ssim_cb, ssim_cr, ssim_local, meets}],
     rejected: [{path, error}]
@@ -34,7 +34,7 @@ def _point(summary: budget.SettingSummary | None) -> dict | None:
     if summary is None:
         return None
     d = summary.setting.as_dict()
-    d.update(estimated_bytes=summary.total_bytes, ssim=round(summary.ssim_at_coverage, 6))
+    d.update(estimated_bytes=summary.total_bytes, ssim=round(summary.ssim_at_coverage, 6), qualifies=summary.qualifies)
     return d
 
 

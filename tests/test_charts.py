@@ -372,3 +372,26 @@ def test_empty_class_renders_a_note():
     assert "No size/SSIM data" in _by_class(root, "fc-note")[0].text
     root = _parse(frontier_svg({}))
     assert len(_by_class(root, "fc-note")) == 1
+
+
+def test_rejected_frontier_points_are_hollow():
+    # The frontier is drawn on luma SSIM; points the decision rejects (a floor or the coverage) are
+    # hollow and say so in their tooltip, the others stay filled.
+    import xml.etree.ElementTree as ET
+
+    from webapp.charts import frontier_svg
+
+    entry = {
+        "name": "banner", "image_count": 2, "target_ssim": 0.95,
+        "setting": {"quality": 80, "cutoff": 64, "subsampling": "4:4:4"},
+        "frontier": [
+            {"quality": 60, "cutoff": 64, "subsampling": "4:2:0", "estimated_bytes": 100_000, "ssim": 0.96, "qualifies": False},
+            {"quality": 80, "cutoff": 64, "subsampling": "4:4:4", "estimated_bytes": 150_000, "ssim": 0.97, "qualifies": True},
+        ],
+    }
+    root = ET.fromstring(frontier_svg(entry))
+    circles = [c for c in root.iter("{http://www.w3.org/2000/svg}circle") if "fc-frontier-point" in c.get("class", "")]
+    assert len(circles) == 2
+    hollow = [c for c in circles if "fc-rejected" in c.get("class")]
+    assert len(hollow) == 1 and hollow[0].get("fill") == "#ffffff"
+    assert "rejected" in hollow[0].find("{http://www.w3.org/2000/svg}title").text

@@ -221,6 +221,9 @@ def test_redecide_via_htmx_matches_pipeline_redecide(swept):
     assert without_created(sweep["document"]) == without_created(expected)
     product = [e for e in expected["classes"] if e["name"] == "product"][0]
     assert f'value="0.99"' in html
+    # The charts follow the new decision too, swapped out of band (their target line moved).
+    charts = html[html.index('<div class="charts" id="results-charts" hx-swap-oob="true">'):]
+    assert "target 0.99" in charts
     if product["setting"]:
         assert f'<td class="num q">{product["setting"]["quality"]}</td>' in html
     # the API reads the same state

@@ -124,6 +124,7 @@ class _Point:
     kb: float
     ssim: float
     label: str
+    qualifies: bool | None = None  # False: the class fails a floor or coverage here (drawn hollow)
 
 
 def _finite(value) -> float | None:
@@ -159,7 +160,8 @@ def _to_point(d, per_kb: float) -> _Point | None:
     ssim = _finite(d.get("ssim"))
     if size is None or ssim is None or size < 0:
         return None
-    return _Point(size / per_kb, ssim, setting_label(d))
+    q = d.get("qualifies")
+    return _Point(size / per_kb, ssim, setting_label(d), q if isinstance(q, bool) else None)
 
 
 def _clean(text) -> str:
@@ -514,9 +516,15 @@ def frontier_svg(class_entry: dict, *, width: int = 560, height: int = 300) -> s
         dot = 3.5 if len(pts) <= 24 else 2.6  # smaller dots keep a dense frontier readable
         for p, (x, y) in zip(frontier, pts):
             tip = f"{p.label}: {_format_kb(p.kb)}, SSIM {_format_ssim(p.ssim)}".lstrip(": ")
+            # The frontier is drawn on luma SSIM; a point the decision rejects (chroma or local
+            # floor, or too few images) is hollow, so "above the target line" never misleads.
+            hollow = p.qualifies is False
+            if hollow:
+                tip += " (rejected: fails a floor or the coverage)"
+            extra = f' fill="#ffffff" stroke="{FRONTIER}" stroke-width="1.5"' if hollow else ""
             out.append(
-                f'<circle class="fc-frontier-point" cx="{x:.2f}" cy="{y:.2f}" r="{dot}">'
-                f"<title>{_esc(tip)}</title></circle>"
+                f'<circle class="fc-frontier-point{" fc-rejected" if hollow else ""}" cx="{x:.2f}" cy="{y:.2f}" '
+                f'r="{dot}"{extra}><title>{_esc(tip)}</title></circle>'
             )
         out.append("</g>")
     if cur_xy is not None:

@@ -134,7 +134,9 @@ def decide(sweep_id):
     sweep = store.get_sweep(db, sweep_id)
     ctx = results_context(sweep, sort=sort, direction=direction)
     if is_htmx():
-        return render_template("_partials/results_table.html", **ctx)
+        # The table is the target; the charts follow the new decision as an out-of-band swap.
+        return render_template("_partials/results_table.html", **ctx) + render_template(
+            "_partials/charts.html", **ctx, oob=True)
     return redirect(url_for("sweeps.show", sweep_id=sweep_id, sort=ctx["sort"], dir=ctx["dir"]), code=303)
 
 
