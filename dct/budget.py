@@ -50,6 +50,16 @@ class Targets:
         return self.target_ssim if self.chroma_floor is None else self.chroma_floor
 
 
+def targets_for(spec) -> Targets:
+    """The decision's targets for a class spec (``dct.sampleset.ClassSpec``), defaults filled in."""
+    return Targets(
+        target_ssim=spec.target_ssim,
+        coverage=spec.coverage,
+        chroma_floor=spec.chroma_floor,
+        local_floor=DEFAULT_LOCAL_FLOOR if spec.local_floor is None else spec.local_floor,
+    )
+
+
 @dataclass(frozen=True)
 class Measure:
     """One image at one setting, the numbers the decision reads."""

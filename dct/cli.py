@@ -216,9 +216,10 @@ def _verify(doc, sample, runner, cache, quiet):
 
     chosen = {(c["name"], c["width"]): Setting.from_dict(c["setting"]) for c in doc["classes"] if c["setting"]}
     jobs = []
+    reported = {i["path"] for i in doc["images"]}
     for job in sample.jobs:
         pairs = tuple((w, chosen[(job.class_name, w)]) for w in job.widths if (job.class_name, w) in chosen)
-        if pairs and any(i["path"] == job.key for i in doc["images"]):
+        if pairs and job.key in reported:
             jobs.append(VerifyJob(job.key, job.source, job.background, pairs))
     actual = {}
     todo = []

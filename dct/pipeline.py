@@ -23,6 +23,7 @@ from dataclasses import dataclass, field, replace
 from typing import Callable, Iterable
 
 from . import budget, report
+from .budget import targets_for
 from .cache import ResultCache, fingerprint
 from .evaluate import ImageResult, evaluate_image
 from .grid import DEFAULT_CURRENT, DEFAULT_GRID, Grid
@@ -32,15 +33,6 @@ from .tables import Setting
 
 REFINE_MARGIN = 0.004  # SSIM; larger than the dips seen between neighbouring qualities
 CURVES_SCHEMA = 1
-
-
-def targets_for(spec: ClassSpec) -> budget.Targets:
-    return budget.Targets(
-        target_ssim=spec.target_ssim,
-        coverage=spec.coverage,
-        chroma_floor=spec.chroma_floor,
-        local_floor=budget.DEFAULT_LOCAL_FLOOR if spec.local_floor is None else spec.local_floor,
-    )
 
 
 @dataclass

@@ -44,8 +44,9 @@ def _tables(setting: Setting) -> dict:
 
 
 def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
-    targets_local = spec.local_floor if spec.local_floor is not None else budget.DEFAULT_LOCAL_FLOOR
-    chroma_floor = spec.chroma_floor if spec.chroma_floor is not None else spec.target_ssim
+    targets = budget.targets_for(spec)
+    targets_local = targets.local_floor
+    chroma_floor = targets.effective_chroma_floor
     s = decision.summary
     entry = {
         "name": spec.name,
@@ -91,12 +92,7 @@ def build_document(*, decisions, results, rejected, current: Setting, grid: dict
             r.key for r in results if r.class_name == spec.name and r.error is None
         )
         shown = decision.setting or (decision.best_share.setting if decision.best_share else None)
-        targets = budget.Targets(
-            spec.target_ssim,
-            spec.coverage,
-            spec.chroma_floor,
-            budget.DEFAULT_LOCAL_FLOOR if spec.local_floor is None else spec.local_floor,
-        )
+        targets = budget.targets_for(spec)
         pixels = 0
         for key in keys:
             curve = next(c for c in by_key[key].curves if c.width == width)

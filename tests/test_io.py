@@ -27,6 +27,7 @@ from dct.io import (
     resize_to_width,
 )
 from dct.tables import quant_tables
+from tests.jpeg_markers import segments
 
 RNG = np.random.default_rng(20240611)
 
@@ -142,17 +143,8 @@ T81_ZIGZAG = [
 
 
 def jpeg_segments(data: bytes) -> list[tuple[int, bytes]]:
-    """(marker, payload) for every segment before the first SOS (B.1.1.4 marker layout)."""
-    assert data[:2] == b"\xff\xd8"
-    pos, out = 2, []
-    while True:
-        assert data[pos] == 0xFF
-        marker = data[pos + 1]
-        (length,) = struct.unpack(">H", data[pos + 2 : pos + 4])
-        out.append((marker, data[pos + 4 : pos + 2 + length]))
-        if marker == 0xDA:
-            return out
-        pos += 2 + length
+    """(marker, payload) for each marker segment up to SOS (ITU-T T.81 Annex B)."""
+    return list(segments(data))
 
 
 def dqt_tables(data: bytes) -> dict[int, np.ndarray]:
