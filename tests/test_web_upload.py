@@ -214,7 +214,7 @@ def test_upload_page_errors(client, files, status, message):
 def test_home_lists_sets_and_has_folder_and_file_inputs(client):
     upload(client, [("product/a.png", png_bytes(ASTRO))])
     page = client.get("/").get_data(as_text=True)
-    assert "1 images in product" in page
+    assert "1 image in product" in page
     assert "webkitdirectory" in page and 'type="file" name="files" multiple' in page
     assert "htmx-2.0.11.min.js" in page and "//unpkg" not in page and "cdn" not in page.lower()
 

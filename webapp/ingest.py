@@ -82,7 +82,8 @@ def ingest(conn, root, files, *, name: str | None = None, reuse: bool = False, m
             return existing["id"], images, rejected, True
     if name is None:
         classes = sorted({im["class"] for im in images})
-        name = f"{len(images)} images" + (f" in {', '.join(classes)}" if classes else "")
+        noun = "image" if len(images) == 1 else "images"
+        name = f"{len(images)} {noun}" + (f" in {', '.join(classes)}" if classes else "")
     set_id = store.create_sample_set(conn, name=name, images=images, rejected=rejected, fingerprint=fingerprint)
     return set_id, images, rejected, False
 
