@@ -1,4 +1,4 @@
-"""Colour conversion and chroma resampling, as a baseline JFIF encoder and decoder do them.
+"""Colour conversion and chroma resampling, in libjpeg's fixed-point arithmetic.
 
 RGB <-> YCbCr is the full-range conversion of ITU-T T.871 (JFIF), section 7:
 
@@ -8,37 +8,71 @@ RGB <-> YCbCr is the full-range conversion of ITU-T T.871 (JFIF), section 7:
     Cb &= -0.168736 R - 0.331264 G + 0.5 B + 128 \\
     Cr &=  0.5 R - 0.418688 G - 0.081312 B + 128
 
-Encoders store 8-bit samples, so the forward conversion rounds to integers (as libjpeg's fixed-point
-converter does). Downsampling averages 2x1 or 2x2 neighbourhoods (libjpeg's default, no smoothing);
-upsampling is the triangle ("fancy") filter that libjpeg's decoder uses by default, so that the
-reconstruction is what a browser shows.
+What this emulates (libjpeg-turbo as Pillow links it, learnt from ``jccolor.c``, ``jcsample.c``,
+``jcprepct.c``, ``jdsample.c`` and ``jdcolor.c``):
+
+* **Encoder colour conversion** with 16-bit fixed-point weights ``FIX(x) = round(x * 2**16)``:
+  ``Y = (19595 R + 38470 G + 7471 B + 2**15) >> 16`` rounds half up; Cb and Cr add
+  ``128 * 2**16 + 2**15 - 1``, so their half-way cases round down (this keeps them within 0..255
+  without clamping). Products fit easily in 32 bits (255 * 2**16 < 2**24).
+* **Downsampling** averages 2x1 or 2x2 neighbourhoods with an alternating bias instead of a fixed
+  half, so that the rounding errors cancel along a row: ``(a + b + {0, 1}) >> 1`` for 4:2:2 and
+  ``(a + b + c + d + {1, 2}) >> 2`` for 4:2:0, the bias alternating from one output column to the next.
+* **Edge extension** replicates the last column of the full-resolution plane out to twice the chroma
+  plane's block width, and the last row to an even count; after downsampling, the last chroma row
+  is replicated down to whole blocks (so rows are extended *after* averaging, columns before).
+* **Decoder upsampling** is the "fancy" triangle filter: each output sample is 3/4 of the nearer
+  and 1/4 of the further input sample per doubled axis, with libjpeg's biases (``+1``/``+2`` over 4
+  for 4:2:2; ``+8``/``+7`` over 16 for 4:2:0), edges replicated at the plane's real (not padded) size.
+* **Decoder colour conversion** with tables: ``R = Y + round(1.402 (Cr-128))``,
+  ``B = Y + round(1.772 (Cb-128))``, ``G = Y + ((-22554 (Cb-128) - 46802 (Cr-128) + 2**15) >> 16)``,
+  each clamped to 0..255.
+
+The equality is checked pixel for pixel against Pillow's encoder (coefficients read back with
+``jpeglib``) and decoder in tests/test_exact.py.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-# ITU-T T.871, equations in section 7 (forward) and their inverse.
-_RGB_TO_YCC = np.array(
-    [
-        [0.299, 0.587, 0.114],
-        [-0.168736, -0.331264, 0.5],
-        [0.5, -0.418688, -0.081312],
-    ],
-    dtype=np.float32,
-)
-_YCC_TO_RGB = np.array(
-    [
-        [1.0, 0.0, 1.402],
-        [1.0, -0.344136, -0.714136],
-        [1.0, 1.772, 0.0],
-    ],
-    dtype=np.float32,
-)
+SCALEBITS = 16
+ONE_HALF = 1 << (SCALEBITS - 1)
+CBCR_OFFSET = 128 << SCALEBITS
+
+
+def _fix(x: float) -> int:
+    return int(x * (1 << SCALEBITS) + 0.5)
+
+
+# Encoder weights (ITU-T T.871 section 7, libjpeg's rounding of them).
+_Y_WEIGHTS = (_fix(0.29900), _fix(0.58700), _fix(0.11400))
+_CB_WEIGHTS = (-_fix(0.16874), -_fix(0.33126), _fix(0.50000))
+_CR_WEIGHTS = (_fix(0.50000), -_fix(0.41869), -_fix(0.08131))
+
+# Decoder tables, indexed by the 8-bit Cb or Cr sample.
+_X = np.arange(256, dtype=np.int64) - 128
+CR_TO_R = ((_fix(1.40200) * _X + ONE_HALF) >> SCALEBITS).astype(np.int32)
+CB_TO_B = ((_fix(1.77200) * _X + ONE_HALF) >> SCALEBITS).astype(np.int32)
+_CR_TO_G = -_fix(0.71414) * _X
+_CB_TO_G = -_fix(0.34414) * _X + ONE_HALF
+
+
+def _weighted(rgb: np.ndarray, weights: tuple[int, int, int], offset: int) -> np.ndarray:
+    r, g, b = (rgb[..., i].astype(np.int32) for i in range(3))
+    return (weights[0] * r + weights[1] * g + weights[2] * b + offset) >> SCALEBITS
+
+
+def luma(rgb: np.ndarray) -> np.ndarray:
+    """The Y of T.871 as libjpeg's encoder rounds it, for an (H, W, 3) uint8 image; (H, W) uint8.
+
+    This is also the luma that Pillow's ``convert("L")`` computes, with the same weights and rounding.
+    """
+    return _weighted(rgb, _Y_WEIGHTS, ONE_HALF).astype(np.uint8)
 
 
 def rgb_to_ycbcr(rgb: np.ndarray) -> np.ndarray:
-    """Convert RGB samples to rounded full-range YCbCr.
+    """Convert RGB samples to YCbCr exactly as libjpeg's encoder does.
 
     Parameters
     ----------
@@ -46,26 +80,27 @@ def rgb_to_ycbcr(rgb: np.ndarray) -> np.ndarray:
 
     Returns
     -------
-    ycc : ndarray, shape (3, H, W), float32
-        Integer-valued planes Y, Cb, Cr in 0..255 (plane-first, the layout the transform wants).
+    ycc : ndarray, shape (3, H, W), uint8
+        Planes Y, Cb, Cr (plane-first, the layout the transform wants).
     """
-    flat = rgb.reshape(-1, 3).astype(np.float32)
-    ycc = flat @ _RGB_TO_YCC.T
-    ycc[:, 1:] += 128.0
-    np.rint(ycc, out=ycc)
-    np.clip(ycc, 0.0, 255.0, out=ycc)
-    h, w = rgb.shape[:2]
-    return np.ascontiguousarray(ycc.T.reshape(3, h, w))
+    rgb = np.asarray(rgb)
+    out = np.empty((3,) + rgb.shape[:2], dtype=np.uint8)
+    out[0] = _weighted(rgb, _Y_WEIGHTS, ONE_HALF)
+    out[1] = _weighted(rgb, _CB_WEIGHTS, CBCR_OFFSET + ONE_HALF - 1)
+    out[2] = _weighted(rgb, _CR_WEIGHTS, CBCR_OFFSET + ONE_HALF - 1)
+    return out
 
 
 def ycbcr_to_rgb(y: np.ndarray, cb: np.ndarray, cr: np.ndarray) -> np.ndarray:
-    """Convert full-resolution YCbCr planes (float, 0..255) to uint8 RGB, shape (H, W, 3)."""
-    h, w = y.shape
-    ycc = np.stack([y.ravel(), cb.ravel() - 128.0, cr.ravel() - 128.0], axis=1).astype(np.float32)
-    rgb = ycc @ _YCC_TO_RGB.T
-    np.rint(rgb, out=rgb)
-    np.clip(rgb, 0.0, 255.0, out=rgb)
-    return rgb.astype(np.uint8).reshape(h, w, 3)
+    """Convert full-resolution uint8 Y, Cb, Cr planes to RGB as libjpeg's decoder does; (H, W, 3) uint8."""
+    y = np.asarray(y, dtype=np.int32)
+    cb = np.asarray(cb, dtype=np.intp)
+    cr = np.asarray(cr, dtype=np.intp)
+    out = np.empty(y.shape + (3,), dtype=np.uint8)
+    out[..., 0] = np.clip(y + CR_TO_R[cr], 0, 255)
+    out[..., 1] = np.clip(y + ((_CB_TO_G[cb] + _CR_TO_G[cr]) >> SCALEBITS), 0, 255)
+    out[..., 2] = np.clip(y + CB_TO_B[cb], 0, 255)
+    return out
 
 
 def pad_edges(plane: np.ndarray, height: int, width: int) -> np.ndarray:
@@ -77,41 +112,92 @@ def pad_edges(plane: np.ndarray, height: int, width: int) -> np.ndarray:
 
 
 def downsample(plane: np.ndarray, h_factor: int, v_factor: int) -> np.ndarray:
-    """Average ``v_factor`` x ``h_factor`` neighbourhoods; the plane's size must be a multiple of them.
+    """Average ``v_factor`` x ``h_factor`` neighbourhoods with libjpeg's alternating bias.
 
-    Returns integer-valued float32 samples, rounded as an encoder stores them.
+    Parameters
+    ----------
+    plane : ndarray, shape (H, W), uint8
+        Both sides multiples of the factors (edge-extended beforehand).
+
+    Returns
+    -------
+    ndarray, shape (H // v_factor, W // h_factor), uint8
     """
     if h_factor == 1 and v_factor == 1:
         return plane
     hh, ww = plane.shape
-    view = plane.reshape(hh // v_factor, v_factor, ww // h_factor, h_factor)
-    out = view.mean(axis=(1, 3), dtype=np.float32)
-    return np.rint(out, out=out)
+    sums = plane.astype(np.int32).reshape(hh // v_factor, v_factor, ww // h_factor, h_factor).sum(axis=(1, 3))
+    n = h_factor * v_factor
+    # bias 0,1,0,1,... for two samples (4:2:2), 1,2,1,2,... for four (4:2:0)
+    bias = np.where(np.arange(sums.shape[1]) % 2 == 0, n // 2 - 1, n // 2).astype(np.int32)
+    shift = n.bit_length() - 1
+    return ((sums + bias) >> shift).astype(np.uint8)
 
 
-def _upsample_axis(plane: np.ndarray, axis: int) -> np.ndarray:
-    """Double one axis with the triangle filter: each output is 3/4 nearest + 1/4 next-nearest input."""
-    x = np.moveaxis(plane, axis, -1)
+def downsample_component(plane: np.ndarray, h_factor: int, v_factor: int, blocks_down: int,
+                         blocks_across: int) -> np.ndarray:
+    """One full-resolution chroma plane -> libjpeg's padded, downsampled component plane.
+
+    Columns are extended to ``2 * 8 * blocks_across`` (times ``h_factor``) and rows to a multiple of
+    ``v_factor`` before averaging; the averaged rows are then extended down to ``8 * blocks_down``.
+
+    Returns
+    -------
+    ndarray, shape (8 * blocks_down, 8 * blocks_across), uint8
+    """
+    h, _ = plane.shape
+    rows = -(-h // v_factor) * v_factor
+    full = pad_edges(plane, rows, 8 * blocks_across * h_factor)
+    return pad_edges(downsample(full, h_factor, v_factor), 8 * blocks_down, 8 * blocks_across)
+
+
+def _fancy_axis(x: np.ndarray, axis: int, near_weight_bias: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
+    """3 * nearer + further along one axis (edges replicated): the sums for even and odd outputs."""
+    x = np.moveaxis(x, axis, -1)
     prev = np.concatenate([x[..., :1], x[..., :-1]], axis=-1)
     nxt = np.concatenate([x[..., 1:], x[..., -1:]], axis=-1)
-    out = np.empty(x.shape[:-1] + (2 * x.shape[-1],), dtype=np.float32)
-    out[..., 0::2] = 0.75 * x + 0.25 * prev
-    out[..., 1::2] = 0.75 * x + 0.25 * nxt
-    return np.moveaxis(out, -1, axis)
+    three = 3 * x
+    return np.moveaxis(three + prev + near_weight_bias[0], -1, axis), np.moveaxis(three + nxt + near_weight_bias[1], -1, axis)
+
+
+def _interleave(even: np.ndarray, odd: np.ndarray, axis: int) -> np.ndarray:
+    shape = list(even.shape)
+    shape[axis] *= 2
+    out = np.empty(shape, dtype=even.dtype)
+    idx_even = [slice(None)] * even.ndim
+    idx_odd = [slice(None)] * even.ndim
+    idx_even[axis] = slice(0, None, 2)
+    idx_odd[axis] = slice(1, None, 2)
+    out[tuple(idx_even)] = even
+    out[tuple(idx_odd)] = odd
+    return out
 
 
 def upsample(plane: np.ndarray, h_factor: int, v_factor: int, height: int, width: int) -> np.ndarray:
-    """Upsample a chroma plane to full resolution and crop to (height, width).
+    """libjpeg's "fancy" upsampling of a decoded chroma plane to full resolution, cropped to (height, width).
 
     Parameters
     ----------
-    plane : ndarray, shape (h, w), float32
+    plane : ndarray, shape (h, w), uint8
+        The component's real samples (``ceil(height / v_factor)`` x ``ceil(width / h_factor)``).
     h_factor, v_factor : int
         1 or 2, the luma sampling factors.
+
+    Returns
+    -------
+    ndarray, shape (height, width), uint8
     """
-    out = plane.astype(np.float32, copy=False)
-    if h_factor == 2:
-        out = _upsample_axis(out, 1)
-    if v_factor == 2:
-        out = _upsample_axis(out, 0)
-    return out[:height, :width]
+    x = np.asarray(plane, dtype=np.int32)
+    if h_factor == 1 and v_factor == 1:
+        return np.asarray(plane, dtype=np.uint8)[:height, :width]
+    if v_factor == 1:  # 4:2:2: (3 * nearer + further + {1, 2}) >> 2 across each row
+        even, odd = _fancy_axis(x, 1, (1, 2))
+        out = _interleave(even >> 2, odd >> 2, 1)
+    else:  # 4:2:0: column sums 3 * nearer + further, then across with {8, 7} over 16
+        above = np.concatenate([x[:1], x[:-1]], axis=0)
+        below = np.concatenate([x[1:], x[-1:]], axis=0)
+        three = 3 * x
+        rows = _interleave(three + above, three + below, 0)  # (2h, w) column sums
+        even, odd = _fancy_axis(rows, 1, (8, 7))
+        out = _interleave(even >> 4, odd >> 4, 1)
+    return out[:height, :width].astype(np.uint8)

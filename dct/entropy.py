@@ -11,10 +11,12 @@ The size is computed from symbol statistics rather than by writing bits:
   K.2 (with the reserved all-ones code point) and limited to 16 bits by the procedure of Figure K.3.
 * The file adds 0xFF byte stuffing in the entropy-coded segment (F.1.2.3), padding of the last byte,
   and the marker segments that libjpeg writes: SOI, APP0 (JFIF), one DQT per table, SOF0, one DHT per
-  table, SOS and EOI.
+  table, SOS and EOI. Stuffing is counted exactly: the scan's bits are assembled from the canonical
+  codes (Annex C) and the magnitude bits, and every 0xFF byte counted; so the size is byte for byte
+  the file's (tests/test_exact.py).
 
 Everything that touches coefficients is vectorized over all blocks (numpy), with no Python loop per
-block or coefficient; only the Huffman construction over at most 256 symbols runs in Python.
+block or coefficient; only the Huffman construction over at most 257 symbols runs in Python.
 """
 
 from __future__ import annotations
@@ -114,57 +116,184 @@ class SymbolStats:
         return SymbolStats(self.dc + other.dc, self.ac + other.ac, self.extra_bits + other.extra_bits)
 
 
-def block_symbol_stats(blocks: np.ndarray) -> SymbolStats:
-    """Count the symbols of one component's blocks.
+@dataclass
+class Scan:
+    """Every symbol of one baseline scan, in the order the encoder writes them (no bits yet).
+
+    Each event is one Huffman symbol followed by its magnitude bits:
+
+    table : ndarray, shape (E,), int8 — ``2 * group + (0 for DC, 1 for AC)``; group 0 is luma, 1 chroma.
+    symbol : ndarray, shape (E,), int16 — DC category, or AC run/size RRRRSSSS (ZRL 0xF0, EOB 0x00).
+    extra : ndarray, shape (E,), int64 — the magnitude bits' value (T.81 F.1.2.1: v, or v - 1 masked,
+        for negative v).
+    extra_len : ndarray, shape (E,), int64 — how many magnitude bits (the category SSSS).
+    groups : int — how many Huffman table pairs the scan uses.
+    """
+
+    table: np.ndarray
+    symbol: np.ndarray
+    extra: np.ndarray
+    extra_len: np.ndarray
+    groups: int
+
+    def counts(self, table: int) -> np.ndarray:
+        """Symbol counts of one table: shape (16,) for DC tables, (256,) for AC tables."""
+        size = 16 if table % 2 == 0 else 256
+        return np.bincount(self.symbol[self.table == table], minlength=size)[:size].astype(np.int64)
+
+    def stats(self, group: int) -> SymbolStats:
+        sel = (self.table == 2 * group) | (self.table == 2 * group + 1)
+        return SymbolStats(self.counts(2 * group), self.counts(2 * group + 1), int(self.extra_len[sel].sum()))
+
+
+def _magnitude_bits(values: np.ndarray, size: np.ndarray) -> np.ndarray:
+    """The SSSS low-order bits that follow a symbol: v itself, or v - 1 in SSSS bits when v < 0."""
+    v = values.astype(np.int64)
+    return np.where(v < 0, v + (np.int64(1) << size) - 1, v)
+
+
+def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: tuple[int, ...]) -> Scan:
+    """The symbol sequence of a scan, vectorized over all blocks (T.81 F.1.2.1 and F.1.2.2).
 
     Parameters
     ----------
     blocks : ndarray, shape (N, 64), integer
-        Quantized coefficients in zigzag order, blocks in coding order (DC prediction runs along it).
+        Quantized coefficients in zigzag order, blocks in the scan's coding order (for an interleaved
+        scan: MCU by MCU, each MCU's blocks component by component).
+    component : ndarray, shape (N,), integer
+        The component of each block; DC prediction runs along each component's own blocks, starting
+        from 0.
+    group_of_component : tuple of int
+        The Huffman table pair of each component (libjpeg: 0 for Y, 1 for Cb and Cr).
     """
     blocks = np.ascontiguousarray(blocks)
     n = blocks.shape[0]
-    if n == 0:
-        return SymbolStats(np.zeros(16, np.int64), np.zeros(256, np.int64), 0)
+    component = np.asarray(component)
+    group = np.asarray(group_of_component, dtype=np.int64)[component]
 
-    # DC differences (F.1.2.1): the predictor starts at 0 for the first block of the scan.
+    # DC differences per component, in coding order.
     dc = blocks[:, 0].astype(np.int64)
-    diff = np.diff(dc, prepend=0)
-    dc_cat = magnitude_category(diff)
-    dc_counts = np.bincount(dc_cat, minlength=16)[:16].astype(np.int64)
-    extra = int(dc_cat.sum())
+    diff = np.empty(n, dtype=np.int64)
+    for c in range(len(group_of_component)):
+        idx = np.flatnonzero(component == c)
+        diff[idx] = np.diff(dc[idx], prepend=0)
+    dc_size = magnitude_category(diff)
 
-    # AC run/size symbols (F.1.2.2). Positions are 1..63 within each block; on the contiguous
-    # (N, 64) array a flat index splits into block (>> 6) and position (& 63).
+    # AC non-zeros: a flat index of the contiguous (N, 64) array splits into block (>> 6) and
+    # zigzag position (& 63); the previous non-zero of the same block (0 = the DC slot) gives the run.
     flat = np.flatnonzero(blocks)
     flat = flat[(flat & 63) != 0]
     rows, pos = flat >> 6, flat & 63
-    size = magnitude_category(blocks.ravel()[flat])
-    extra += int(size.sum())
-    # The previous non-zero position in the same block (0 = the DC slot) gives the run length.
-    prev = np.empty_like(pos)
+    values = blocks.ravel()[flat]
+    size = magnitude_category(values)
+    prev = np.zeros_like(pos)
     if pos.size:
-        prev[0] = 0
         prev[1:] = pos[:-1]
-        new_block = np.ones(pos.size, dtype=bool)
-        new_block[1:] = rows[1:] != rows[:-1]
-        prev[new_block] = 0
+        prev[np.r_[True, rows[1:] != rows[:-1]]] = 0
     run = pos - prev - 1
-    ac_counts = np.bincount(((run & 15) << 4) | size, minlength=256).astype(np.int64)
-    ac_counts[ZRL] += int((run >> 4).sum())
-    # EOB unless the block's last non-zero coefficient sits at zigzag position 63.
-    ends_at_63 = int(np.count_nonzero(blocks[:, 63]))
-    ac_counts[EOB] += n - ends_at_63
-    return SymbolStats(dc_counts, ac_counts, extra)
+    zrl = run >> 4
+    eob_rows = np.flatnonzero(blocks[:, 63] == 0)
+
+    # Order every event by a key: DC at slot 0, a non-zero at position p at slot 2p + 1 with its
+    # ZRLs (one per 16 zeros skipped) just before it at slot 2p, EOB at slot 255.
+    zrl_owner = np.repeat(np.arange(pos.size), zrl)
+    keys = np.concatenate([
+        np.arange(n, dtype=np.int64) << 8,
+        (rows.astype(np.int64) << 8) | (2 * pos + 1),
+        (rows[zrl_owner].astype(np.int64) << 8) | (2 * pos[zrl_owner]),
+        (eob_rows.astype(np.int64) << 8) | 255,
+    ])
+    table = np.concatenate([2 * group, 2 * group[rows] + 1, 2 * group[rows[zrl_owner]] + 1, 2 * group[eob_rows] + 1])
+    symbol = np.concatenate([dc_size, ((run & 15) << 4) | size, np.full(zrl_owner.size, ZRL), np.full(eob_rows.size, EOB)])
+    extra = np.concatenate([_magnitude_bits(diff, dc_size), _magnitude_bits(values, size),
+                            np.zeros(zrl_owner.size + eob_rows.size, np.int64)])
+    extra_len = np.concatenate([dc_size, size, np.zeros(zrl_owner.size + eob_rows.size, np.int64)])
+    order = np.argsort(keys, kind="stable")
+    return Scan(table[order].astype(np.int8), symbol[order].astype(np.int16), extra[order],
+                extra_len[order].astype(np.int64), len(set(group_of_component)))
 
 
-def optimal_code_lengths(counts: np.ndarray) -> np.ndarray:
-    """Huffman code lengths for symbol counts, limited to 16 bits (ITU-T T.81 Annex K.2).
+def block_symbol_stats(blocks: np.ndarray) -> SymbolStats:
+    """Symbol counts of one component's blocks (N, 64), zigzag order, in coding order."""
+    blocks = np.asarray(blocks)
+    return scan_symbols(blocks, np.zeros(blocks.shape[0], np.int64), (0,)).stats(0)
 
-    As in K.2, a reserved pseudo-symbol with count 1 is added so that no real code is all ones; the
-    lengths are then limited to 16 bits with the procedure of Figure K.3 (Adjust_BITS), and the
-    pseudo-symbol's code is removed from the longest length. Symbols keep their order by original code
-    length when lengths are reassigned, as the Annex K procedure Sort_input does.
+
+def canonical_codes(bits: tuple[int, ...], huffval: tuple[int, ...], size: int) -> tuple[np.ndarray, np.ndarray]:
+    """Code words and lengths of a table given as BITS and HUFFVAL (T.81 Annex C, Figures C.1-C.3).
+
+    Returns
+    -------
+    codes, lengths : ndarray, shape (size,), int64 — 0 length for symbols without a code.
+    """
+    codes = np.zeros(size, dtype=np.int64)
+    lengths = np.zeros(size, dtype=np.int64)
+    code, k = 0, 0
+    for length, count in enumerate(bits, start=1):
+        for _ in range(count):
+            codes[huffval[k]] = code
+            lengths[huffval[k]] = length
+            code += 1
+            k += 1
+        code <<= 1
+    return codes, lengths
+
+
+def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]]) -> tuple[int, int]:
+    """Exact length of the entropy-coded segment: the packed bits, padding and 0xFF stuffing.
+
+    The bits are assembled as the encoder writes them (T.81 F.1.2.3): each symbol's code followed by
+    its magnitude bits, most significant bit first, the last byte padded with 1-bits, and a 0x00
+    stuffed after every 0xFF byte. Each field (at most 16 + 11 bits) lands in at most 5 bytes; the
+    fields' bits never overlap, so adding their per-byte contributions assembles the bytes.
+
+    Parameters
+    ----------
+    scan : Scan
+    tables : list of (codes, lengths)
+        One per table index of the scan (``2 * group + ac``), from :func:`canonical_codes`.
+
+    Returns
+    -------
+    (bytes, stuffed) : total bytes of the segment including stuffing, and the stuffed count.
+    """
+    codes = np.zeros((len(tables), 256), dtype=np.int64)
+    lens = np.zeros((len(tables), 256), dtype=np.int64)
+    for t, (c, l) in enumerate(tables):
+        codes[t, : c.size], lens[t, : l.size] = c, l
+    t, sym = scan.table.astype(np.intp), scan.symbol.astype(np.intp)
+    code_len = lens[t, sym]
+    if np.any(code_len == 0):
+        bad = np.unique(sym[code_len == 0]).tolist()
+        raise ValueError(f"symbols {bad!r} have no code in the table")
+    field_len = code_len + scan.extra_len
+    field = (codes[t, sym] << scan.extra_len) | scan.extra
+    total_bits = int(field_len.sum())
+    n_bytes = (total_bits + 7) // 8
+    start = np.cumsum(field_len) - field_len
+    # Place each field in a 40-bit window that starts at its first byte.
+    window = field << (40 - (start & 7) - field_len)
+    first = start >> 3
+    contributions = np.empty((5, field.size), dtype=np.float64)
+    for k in range(5):
+        contributions[k] = (window >> (32 - 8 * k)) & 0xFF
+    index = (first[None, :] + np.arange(5)[:, None]).ravel()
+    packed = np.bincount(index, weights=contributions.ravel(), minlength=n_bytes + 5)[:n_bytes]
+    if total_bits % 8:
+        packed[-1] += (1 << (8 - total_bits % 8)) - 1  # pad with 1-bits
+    stuffed = int(np.count_nonzero(packed == 255))
+    return n_bytes + stuffed, stuffed
+
+
+def optimal_table(counts: np.ndarray) -> tuple[tuple[int, ...], tuple[int, ...]]:
+    """The Huffman table libjpeg builds for symbol counts (ITU-T T.81 Annex K.2), as BITS and HUFFVAL.
+
+    As in K.2, a reserved pseudo-symbol with count 1 (index ``len(counts)``) keeps any real code from
+    being all ones; code lengths are limited to 16 bits by the procedure of Figure K.3 (Adjust_BITS) and
+    the pseudo-symbol's code is then removed from the longest length. Ties matter for the exact file:
+    each merge takes the two least frequent nodes, and among equal counts the *higher* symbol index
+    first, a merged node keeping the index of the first (libjpeg's ``jpeg_gen_optimal_table``, learnt
+    from libjpeg-turbo's jchuff.c). HUFFVAL lists symbols by their unlimited code length, then index.
 
     Parameters
     ----------
@@ -172,31 +301,30 @@ def optimal_code_lengths(counts: np.ndarray) -> np.ndarray:
 
     Returns
     -------
-    lengths : ndarray, shape (S,), int32 — 0 for symbols that never occur.
+    bits : tuple of 16 ints — number of codes of length 1..16.
+    huffval : tuple of ints — the symbols in code order.
     """
     counts = np.asarray(counts, dtype=np.int64)
-    used = np.flatnonzero(counts)
-    lengths = np.zeros(counts.size, dtype=np.int32)
-    if used.size == 0:
-        return lengths
-    reserved = counts.size  # index of the pseudo-symbol
-    symbols = list(used) + [reserved]
+    used = [int(s) for s in np.flatnonzero(counts)]
+    if not used:
+        return (0,) * MAX_CODE_LENGTH, ()
+    symbols = used + [counts.size]  # the reserved pseudo-symbol comes last
     freqs = [int(counts[s]) for s in used] + [1]
 
-    # Plain Huffman tree by repeated merging of the two least frequent nodes (K.2, Figure K.1).
-    heap = [(f, i, (i,)) for i, f in enumerate(freqs)]
+    # Plain Huffman tree by repeated merging (K.2, Figure K.1). The heap key (count, -index) pops the
+    # least count first and, among equal counts, the highest index: libjpeg's choice of c1, then c2.
+    heap = [(f, -i) for i, f in enumerate(freqs)]
     heapq.heapify(heap)
+    members = {i: [i] for i in range(len(freqs))}
     depth = [0] * len(freqs)
-    tie = len(freqs)
     while len(heap) > 1:
-        f1, _, a = heapq.heappop(heap)
-        f2, _, b = heapq.heappop(heap)
-        for leaf in a + b:
+        f1, n1 = heapq.heappop(heap)
+        f2, n2 = heapq.heappop(heap)
+        merged = members.pop(-n1) + members.pop(-n2)
+        for leaf in merged:
             depth[leaf] += 1
-        heapq.heappush(heap, (f1 + f2, tie, a + b))
-        tie += 1
-    if len(freqs) == 1:  # cannot happen with the pseudo-symbol, kept for clarity
-        depth[0] = 1
+        members[-n1] = merged
+        heapq.heappush(heap, (f1 + f2, n1))
 
     max_len = max(max(depth), MAX_CODE_LENGTH)
     bits = [0] * (max_len + 1)
@@ -219,16 +347,15 @@ def optimal_code_lengths(counts: np.ndarray) -> np.ndarray:
     while bits[i] == 0:
         i -= 1
     bits[i] -= 1
+    order = sorted(range(len(used)), key=lambda k: (depth[k], symbols[k]))
+    return tuple(bits[1 : MAX_CODE_LENGTH + 1]), tuple(symbols[k] for k in order)
 
-    # Reassign lengths in order of the original code lengths (shortest first), the pseudo-symbol last.
-    order = sorted(range(len(freqs)), key=lambda k: (depth[k], symbols[k]))
-    order = [k for k in order if symbols[k] != reserved]
-    pos = 0
-    for length in range(1, MAX_CODE_LENGTH + 1):
-        for _ in range(bits[length]):
-            lengths[symbols[order[pos]]] = length
-            pos += 1
-    return lengths
+
+def optimal_code_lengths(counts: np.ndarray) -> np.ndarray:
+    """Per-symbol code lengths of :func:`optimal_table` (0 for symbols that never occur), int32."""
+    counts = np.asarray(counts)
+    bits, huffval = optimal_table(counts)
+    return standard_code_lengths(bits, huffval, counts.size)
 
 
 def standard_code_lengths(bits: tuple[int, ...], values: tuple[int, ...], size: int) -> np.ndarray:
@@ -258,50 +385,49 @@ def coded_bits(counts: np.ndarray, lengths: np.ndarray) -> int:
     return int(np.dot(counts, lengths))
 
 
-# Share of 0xFF bytes in entropy-coded data, which each need a stuffed 0x00 (T.81 F.1.2.3). Measured
-# on libjpeg output (see tests/test_entropy.py): close to the 1/256 of random bytes.
-STUFFING_RATE = 1.0 / 256.0
+STD_TABLES = {
+    (0, "dc"): (STD_DC_LUMA_BITS, STD_DC_LUMA_VALS),
+    (0, "ac"): (STD_AC_LUMA_BITS, STD_AC_LUMA_VALS),
+    (1, "dc"): (STD_DC_CHROMA_BITS, STD_DC_CHROMA_VALS),
+    (1, "ac"): (STD_AC_CHROMA_BITS, STD_AC_CHROMA_VALS),
+}
 
 
 @dataclass
 class FileSize:
-    """Breakdown of an estimated JPEG file size, in bytes."""
+    """Breakdown of a JPEG file's size, in bytes."""
 
     headers: int
     scan: int  # entropy-coded data including stuffing and padding
     total: int
+    stuffed: int = 0
 
 
-def file_size(
-    tables: list[tuple[SymbolStats, bool]], *, components: int, quant_tables: int, optimal: bool = True
-) -> FileSize:
-    """Estimate the complete file size from per-Huffman-table symbol statistics.
+def file_size(scan: Scan, *, components: int, quant_tables: int, optimal: bool = True) -> FileSize:
+    """The exact size of the baseline file libjpeg writes for a scan.
 
     Parameters
     ----------
-    tables : list of (SymbolStats, is_luma)
-        One entry per Huffman table pair: the luma table, and (for colour) the chroma table shared by
-        Cb and Cr, as libjpeg assigns them.
+    scan : Scan
+        From :func:`scan_symbols`.
     components : int
         1 (grayscale) or 3.
     quant_tables : int
         Number of DQT tables written (1 or 2).
     optimal : bool
-        Optimal per-image Huffman tables (``optimize=True``) or the standard Annex K tables.
+        Optimal per-image Huffman tables (``optimize=True``; :func:`optimal_table`) or the standard
+        tables of Annex K.3.
     """
     headers = SOI_BYTES + APP0_JFIF_BYTES + quant_tables * DQT_BYTES + sof0_bytes(components)
     headers += sos_bytes(components) + EOI_BYTES
-    bits = 0
-    for stats, is_luma in tables:
-        if optimal:
-            dc_len = optimal_code_lengths(stats.dc)
-            ac_len = optimal_code_lengths(stats.ac)
-            headers += dht_bytes(int(np.count_nonzero(stats.dc))) + dht_bytes(int(np.count_nonzero(stats.ac)))
-        else:
-            kind = "luma" if is_luma else "chroma"
-            dc_len, ac_len = STD_LENGTHS[f"dc_{kind}"], STD_LENGTHS[f"ac_{kind}"]
-            headers += dht_bytes(int(np.count_nonzero(dc_len))) + dht_bytes(int(np.count_nonzero(ac_len)))
-        bits += coded_bits(stats.dc, dc_len) + coded_bits(stats.ac, ac_len) + stats.extra_bits
-    data = (bits + 7) // 8  # the last byte is padded with 1-bits
-    scan = data + int(round(data * STUFFING_RATE))
-    return FileSize(headers=headers, scan=scan, total=headers + scan)
+    tables = []
+    for group in range(scan.groups):
+        for kind, size in (("dc", 16), ("ac", 256)):
+            if optimal:
+                bits, huffval = optimal_table(scan.counts(len(tables)))
+            else:
+                bits, huffval = STD_TABLES[(group, kind)]
+            headers += dht_bytes(len(huffval))
+            tables.append(canonical_codes(bits, huffval, size))
+    data, stuffed = entropy_coded_bytes(scan, tables)
+    return FileSize(headers=headers, scan=data, total=headers + data, stuffed=stuffed)

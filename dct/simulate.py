@@ -1,20 +1,24 @@
-"""Simulate baseline JPEG settings on an image: estimated file size, SSIM and the reconstruction.
+"""Simulate baseline JPEG settings on an image: the exact file size, SSIM and the decoded pixels.
 
-The path for one setting (ITU-T T.81 baseline sequential, as libjpeg implements it):
+The path for one setting is libjpeg-turbo's, step for step (as Pillow links it), so the numbers are
+the encoder's own answer rather than an estimate:
 
-1. RGB -> YCbCr (T.871), chroma downsampled for 4:2:2 / 4:2:0, planes padded by edge replication to
-   whole blocks and MCUs, level shift by -128 (T.81 A.3.1);
-2. forward DCT of every 8x8 block (``Y = C X C^T``);
-3. quantization ``Sq = round(S / Q)`` with ties away from zero (T.81 A.3.4, as libjpeg rounds);
-4. symbol statistics and Huffman code lengths -> entropy-coded size (``dct.entropy``);
-5. dequantization and inverse DCT (``X = C^T Y C``), rounding and clamping to 8-bit samples,
-   triangle-filter chroma upsampling and YCbCr -> RGB, as a decoder shows the file;
-6. SSIM of the decoded luma against the original luma, and of each decoded, upsampled chroma plane
-   against the original full-resolution chroma (luma SSIM cannot see subsampling damage).
+1. RGB -> YCbCr in libjpeg's fixed point, chroma downsampled with its alternating bias, planes
+   extended to whole blocks and MCUs as its encoder extends them (``dct.color``);
+2. forward DCT of every 8x8 block with libjpeg's accurate integer DCT (``dct.integer_dct``);
+3. quantization by libjpeg's reciprocal multiplication (its rounding, ties included);
+4. the scan's symbols in coding order, Huffman tables built as libjpeg builds them, and the bits
+   assembled to count 0xFF stuffing: the file size byte for byte (``dct.entropy``);
+5. dequantization, the integer inverse DCT with its rounding and clamping, "fancy" chroma upsampling
+   and fixed-point YCbCr -> RGB: the pixels a browser shows;
+6. SSIM of the luma of the decoded RGB against the luma of the original (what a viewer, or a
+   re-encoding check, sees), and of each decoded, upsampled chroma plane against the original
+   full-resolution chroma (luma SSIM cannot see subsampling damage).
 
-:class:`PreparedImage` does steps 1-2 once per image (luma once, chroma once per subsampling mode)
-and keeps the reference statistics for SSIM, so a sweep over many settings only repeats 3-6.
-The luma plane does not depend on the subsampling mode, so its results are shared across modes.
+The definition ``Y = C X C^T`` (``dct.transform``) stays the reference the integer DCT is tested
+against. :class:`PreparedImage` does steps 1-2 once per image (luma once, chroma once per subsampling
+mode) and keeps the reference statistics for SSIM; a sweep over many settings repeats 3-6, sharing
+the luma quantization and inverse DCT across subsampling modes and the chroma work across luma tables.
 """
 
 from __future__ import annotations
@@ -26,16 +30,16 @@ from typing import Iterable
 import numpy as np
 
 from . import color, entropy, quality
-from .tables import SAMPLING_FACTORS, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
-from .transform import BLOCK, forward_dct_plane, inverse_dct_blocks
+from .integer_dct import forward_dct_islow, inverse_dct_islow
+from .tables import SAMPLING_FACTORS, UNZIGZAG, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
+from .transform import BLOCK
 
-_ZZ = tuple(int(i) for i in ZIGZAG)
-# Quantization ties are exact in libjpeg's integer DCT (a flat block's DC lands on k + 1/2); the float
-# DCT lands a few ulps either side of them, so a small bias restores libjpeg's round-half-up.
-_TIE_BIAS = 1e-4
 MIN_SIDE = 2 * quality.RADIUS + 1  # SSIM's 11x11 window must fit
 # Chroma SSIM samples its (smooth) map at every other pixel: a quarter of the work; see quality.py.
 CHROMA_SSIM_STEP = 2
+# libjpeg's DCTELEM is 16 bits wide in SIMD builds (what Pillow's wheels ship); its reciprocal
+# quantizer's shift depends on that width.
+_DCTELEM_BITS = 16
 
 
 def _check_pixels(rgb) -> np.ndarray:
@@ -59,11 +63,54 @@ def _ceil_div(a: int, b: int) -> int:
     return -(-a // b)
 
 
-def _quantize(coefficients: np.ndarray, table_zigzag: np.ndarray) -> np.ndarray:
-    """Round coefficients / Q to integers, ties away from zero. Returns int32, same shape."""
-    scaled = coefficients * (1.0 / table_zigzag.astype(np.float32))
-    scaled += np.copysign(np.float32(0.5 + _TIE_BIAS), scaled)
-    return scaled.astype(np.int32)  # the cast truncates toward zero
+def reciprocal_divisors(table_natural: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """libjpeg-turbo's reciprocal quantizer for a table (``compute_reciprocal`` in jcdctmgr.c).
+
+    The divisor of the integer DCT's output is ``8 * Q``. Instead of dividing, libjpeg multiplies by
+    ``fq ~ 2**r / d`` after adding a correction ``c ~ d / 2``: ``q = ((|t| + c) * fq) >> r``, with
+    the sign restored. The correction absorbs the error of the rounded reciprocal, so the result is
+    round-half-up of ``|t| / d`` as its division-based code computes it.
+
+    Returns
+    -------
+    fq, c, r : ndarray, shape (64,), int64 — natural order.
+    """
+    d = 8 * np.asarray(table_natural, dtype=np.int64).reshape(64)
+    fq = np.empty(64, np.int64)
+    c = np.empty(64, np.int64)
+    r = np.empty(64, np.int64)
+    for i, di in enumerate(d.tolist()):
+        b = di.bit_length() - 1
+        ri = _DCTELEM_BITS + b
+        fqi, fri = divmod(1 << ri, di)
+        ci = di // 2
+        if fri == 0:  # a power of two: the reciprocal would not fit, so halve it
+            fqi >>= 1
+            ri -= 1
+        elif fri <= di // 2:
+            ci += 1
+        else:
+            fqi += 1
+        fq[i], c[i], r[i] = fqi, ci, ri
+    return fq, c, r
+
+
+def quantize(coefficients: np.ndarray, table_natural: np.ndarray) -> np.ndarray:
+    """Quantize libjpeg-scaled DCT coefficients the way libjpeg-turbo does.
+
+    Parameters
+    ----------
+    coefficients : ndarray, shape (..., 64), int32 — natural order, the integer DCT's x8 scale.
+    table_natural : ndarray, shape (8, 8) or (64,) — quantization table entries 1..255.
+
+    Returns
+    -------
+    ndarray, same shape, int32.
+    """
+    fq, c, r = reciprocal_divisors(table_natural)
+    t = coefficients.astype(np.int64)
+    mag = ((np.abs(t) + c) * fq) >> r
+    return np.where(t < 0, -mag, mag).astype(np.int32)
 
 
 def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
@@ -93,41 +140,51 @@ def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
     return full.reshape(nmy, v, nmx, h, 64).transpose(0, 2, 1, 3, 4).reshape(-1, 64)
 
 
+def _scan(luma_q: np.ndarray, chroma_q: tuple[np.ndarray, np.ndarray] | None, subsampling: str) -> entropy.Scan:
+    """The file's single scan: blocks interleaved MCU by MCU (Y blocks, then Cb, then Cr), zigzag."""
+    if chroma_q is None:  # one component: a non-interleaved scan of the real blocks in raster order
+        y = luma_q.reshape(-1, 64)[:, ZIGZAG]
+        return entropy.scan_symbols(y, np.zeros(y.shape[0], np.int8), (0,))
+    h, v = SAMPLING_FACTORS[subsampling]
+    y = _coding_order(luma_q, h, v)[:, ZIGZAG]
+    mcus = y.shape[0] // (h * v)
+    per_mcu = h * v + 2
+    blocks = np.empty((mcus, per_mcu, 64), dtype=np.int32)
+    blocks[:, : h * v] = y.reshape(mcus, h * v, 64)
+    blocks[:, h * v] = chroma_q[0].reshape(-1, 64)[:, ZIGZAG]
+    blocks[:, h * v + 1] = chroma_q[1].reshape(-1, 64)[:, ZIGZAG]
+    component = np.tile(np.array([0] * (h * v) + [1, 2], np.int8), mcus)
+    return entropy.scan_symbols(blocks.reshape(-1, 64), component, (0, 1, 1))
+
+
+def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int) -> np.ndarray:
+    """Dequantize, integer inverse DCT and crop one component to its real rows x cols; uint8."""
+    nby, nbx, _ = q.shape
+    deq = q.reshape(-1, 8, 8) * np.asarray(table_natural, dtype=np.int32).reshape(8, 8)
+    blocks = inverse_dct_islow(deq)
+    plane = blocks.reshape(nby, nbx, BLOCK, BLOCK).transpose(0, 2, 1, 3).reshape(nby * BLOCK, nbx * BLOCK)
+    return plane[:rows, :cols]
+
+
+def _blocks(plane: np.ndarray) -> np.ndarray:
+    """Level-shift and integer-DCT a plane whose sides are multiples of 8: (nby, nbx, 64) int32, natural."""
+    h, w = plane.shape
+    b = plane.reshape(h // BLOCK, BLOCK, w // BLOCK, BLOCK).transpose(0, 2, 1, 3).astype(np.int32) - 128
+    return forward_dct_islow(b).reshape(h // BLOCK, w // BLOCK, 64)
+
+
 @dataclass
-class _Plane:
-    """One component transformed once: its zigzag coefficients and what reconstruction needs."""
-
-    coefficients: np.ndarray  # (nby, nbx, 64) float32, zigzag order
-    height: int  # rows of real samples in this component
-    width: int
-
-
-def _transform(plane: np.ndarray, rows: int, cols: int) -> _Plane:
-    """Level-shift and DCT a padded plane; keep the real sample extent for reconstruction."""
-    return _Plane(forward_dct_plane(plane - 128.0, order=_ZZ), rows, cols)
-
-
-def _reconstruct(coded: np.ndarray, table_zigzag: np.ndarray, rows: int, cols: int) -> np.ndarray:
-    """Dequantize, inverse DCT, round and clamp to 8-bit samples; crop to rows x cols. float32."""
-    deq = coded.astype(np.float32) * table_zigzag.astype(np.float32)
-    plane = inverse_dct_blocks(deq, order=_ZZ)[:rows, :cols]
-    plane += 128.0
-    np.rint(plane, out=plane)
-    return np.clip(plane, 0.0, 255.0, out=plane)
+class _LumaDecode:
+    q: np.ndarray  # quantized blocks, natural order
+    plane: np.ndarray  # decoded Y, (H, W) uint8
 
 
 @dataclass
-class _LumaResult:
-    ssim: quality.SsimResult
-    recon: np.ndarray | None
-
-
-@dataclass
-class _ChromaResult:
-    stats: entropy.SymbolStats
+class _ChromaDecode:
+    q: tuple[np.ndarray, np.ndarray]
+    planes: tuple[np.ndarray, np.ndarray]  # upsampled Cb, Cr, (H, W) uint8
     ssim_cb: quality.SsimResult
     ssim_cr: quality.SsimResult
-    recon: tuple[np.ndarray, np.ndarray] | None
 
 
 @dataclass
@@ -135,9 +192,9 @@ class SweepPoint:
     """What one setting costs and how it looks, for one image (no arrays: cheap to keep and ship)."""
 
     setting: Setting | None  # None when explicit tables were simulated
-    estimated_bytes: int  # whole file, optimal Huffman tables (libjpeg optimize=True)
-    standard_bytes: int  # whole file, the standard Annex K Huffman tables
-    ssim: float  # luma
+    estimated_bytes: int  # whole file, optimal Huffman tables (libjpeg optimize=True), byte exact
+    standard_bytes: int  # whole file, the standard Annex K Huffman tables, byte exact
+    ssim: float  # luma of the decoded RGB against the original's luma
     ssim_cb: float | None  # None for grayscale
     ssim_cr: float | None
     ssim_local: float  # low percentile of 16x16-tile mean luma SSIM (quality.LOCAL_PERCENTILE)
@@ -193,38 +250,49 @@ class PreparedImage:
         self.height, self.width = rgb.shape[:2]
         self.grayscale = rgb.ndim == 2
         if self.grayscale:
-            self._planes = (rgb.astype(np.float32),)
+            self._planes = (rgb,)
         else:
             ycc = color.rgb_to_ycbcr(rgb)
             self._planes = (ycc[0], ycc[1], ycc[2])
-        self._luma: _Plane | None = None
-        self._chroma: dict[str, tuple[_Plane, _Plane]] = {}
+        self._luma: np.ndarray | None = None
+        self._chroma: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         self._luma_ref: quality.ReferenceStats | None = None
         self._chroma_ref: tuple[quality.ReferenceStats, quality.ReferenceStats] | None = None
-        self._luma_cache: dict[bytes, _LumaResult] = {}
-        self._chroma_cache: dict[tuple[str, bytes], _ChromaResult] = {}
+        self._luma_cache: dict[bytes, _LumaDecode] = {}
+        self._chroma_cache: dict[tuple[str, bytes], _ChromaDecode] = {}
 
     # -- transforms, done once ---------------------------------------------------------------
 
-    def _luma_plane(self) -> _Plane:
+    def _luma_blocks(self) -> np.ndarray:
         if self._luma is None:
             hb, wb = _ceil_div(self.height, BLOCK) * BLOCK, _ceil_div(self.width, BLOCK) * BLOCK
-            padded = color.pad_edges(self._planes[0], hb, wb)
-            self._luma = _transform(padded, self.height, self.width)
+            self._luma = _blocks(color.pad_edges(self._planes[0], hb, wb))
         return self._luma
 
-    def _chroma_planes(self, subsampling: str) -> tuple[_Plane, _Plane]:
+    def _chroma_blocks(self, subsampling: str) -> tuple[np.ndarray, np.ndarray]:
         if subsampling not in self._chroma:
             h, v = SAMPLING_FACTORS[subsampling]
-            full_h = _ceil_div(self.height, BLOCK * v) * BLOCK * v
-            full_w = _ceil_div(self.width, BLOCK * h) * BLOCK * h
-            rows, cols = _ceil_div(self.height, v), _ceil_div(self.width, h)
-            planes = []
-            for p in self._planes[1:]:
-                small = color.downsample(color.pad_edges(p, full_h, full_w), h, v)
-                planes.append(_transform(small, rows, cols))
-            self._chroma[subsampling] = (planes[0], planes[1])
+            down = _ceil_div(_ceil_div(self.height, v), BLOCK)
+            across = _ceil_div(_ceil_div(self.width, h), BLOCK)
+            cb, cr = (_blocks(color.downsample_component(p, h, v, down, across)) for p in self._planes[1:])
+            self._chroma[subsampling] = (cb, cr)
         return self._chroma[subsampling]
+
+    def dct_coefficients(self, subsampling: str = "4:2:0") -> tuple[np.ndarray, ...]:
+        """The unquantized DCT of every block, per component (Y, or Y, Cb, Cr for colour).
+
+        Returns
+        -------
+        tuple of ndarray, shape (nby, nbx, 64), int32
+            Zigzag order, on libjpeg's scale: 8 times the orthonormal ``C X C^T`` of the
+            level-shifted block, rounded by its integer DCT. Chroma blocks are those of the mode's
+            downsampled planes.
+        """
+        luma = self._luma_blocks()[..., ZIGZAG]
+        if self.grayscale:
+            return (luma,)
+        cb, cr = self._chroma_blocks(check_subsampling(subsampling))
+        return (luma, cb[..., ZIGZAG], cr[..., ZIGZAG])
 
     def _luma_reference(self) -> quality.ReferenceStats:
         if self._luma_ref is None:
@@ -241,48 +309,33 @@ class PreparedImage:
 
     # -- per setting -------------------------------------------------------------------------
 
-    def _run_luma(self, table: np.ndarray, subsampling: str, want_arrays: bool) -> tuple[_LumaResult, np.ndarray]:
-        tz = table.reshape(64)[ZIGZAG]
-        # Dummy blocks depend on the MCU shape, so the symbol statistics are per mode; the
-        # reconstruction and its SSIM are not, and are cached across modes.
-        key = tz.tobytes()
-        plane = self._luma_plane()
-        coded = _quantize(plane.coefficients, tz)
-        h, v = (1, 1) if self.grayscale else SAMPLING_FACTORS[subsampling]
-        stats = entropy.block_symbol_stats(_coding_order(coded, h, v))
+    def _decode_luma(self, table: np.ndarray) -> _LumaDecode:
+        # The luma blocks, their quantization and inverse DCT do not depend on the subsampling mode.
+        key = table.tobytes()
         cached = self._luma_cache.get(key)
-        if cached is None or (want_arrays and cached.recon is None):
-            recon = _reconstruct(coded, tz, plane.height, plane.width)
-            result = self._luma_reference().compare(recon, want_map=want_arrays)
-            cached = _LumaResult(ssim=result, recon=recon if want_arrays else None)
+        if cached is None:
+            q = quantize(self._luma_blocks(), table)
+            cached = _LumaDecode(q, _decode_plane(q, table, self.height, self.width))
             self._luma_cache[key] = cached
-        return cached, stats
+        return cached
 
-    def _run_chroma(self, table: np.ndarray, subsampling: str, want_arrays: bool) -> _ChromaResult:
-        tz = table.reshape(64)[ZIGZAG]
-        key = (subsampling, tz.tobytes())
+    def _decode_chroma(self, table: np.ndarray, subsampling: str) -> _ChromaDecode:
+        key = (subsampling, table.tobytes())
         cached = self._chroma_cache.get(key)
-        if cached is not None and (cached.recon is not None or not want_arrays):
-            return cached
-        h, v = SAMPLING_FACTORS[subsampling]
-        cb_plane, cr_plane = self._chroma_planes(subsampling)
-        stats = entropy.SymbolStats(np.zeros(16, np.int64), np.zeros(256, np.int64), 0)
-        recons = []
-        for p in (cb_plane, cr_plane):
-            coded = _quantize(p.coefficients, tz)
-            stats = stats + entropy.block_symbol_stats(coded.reshape(-1, 64))
-            small = _reconstruct(coded, tz, p.height, p.width)
-            full = color.upsample(small, h, v, self.height, self.width)
-            recons.append(np.rint(full))
-        ref_cb, ref_cr = self._chroma_reference()
-        result = _ChromaResult(
-            stats=stats,
-            ssim_cb=ref_cb.compare(recons[0]),
-            ssim_cr=ref_cr.compare(recons[1]),
-            recon=(recons[0], recons[1]) if want_arrays else None,
-        )
-        self._chroma_cache[key] = result
-        return result
+        if cached is None:
+            h, v = SAMPLING_FACTORS[subsampling]
+            rows, cols = _ceil_div(self.height, v), _ceil_div(self.width, h)
+            qs, planes = [], []
+            for blocks in self._chroma_blocks(subsampling):
+                q = quantize(blocks, table)
+                qs.append(q)
+                planes.append(color.upsample(_decode_plane(q, table, rows, cols), h, v, self.height, self.width))
+            ref_cb, ref_cr = self._chroma_reference()
+            cached = _ChromaDecode(
+                (qs[0], qs[1]), (planes[0], planes[1]), ref_cb.compare(planes[0]), ref_cr.compare(planes[1])
+            )
+            self._chroma_cache[key] = cached
+        return cached
 
     def evaluate(
         self,
@@ -302,34 +355,34 @@ class PreparedImage:
             luma_t = check_table(tables[0], "luma table")
             chroma_t = check_table(tables[1], "chroma table")
             subsampling = check_subsampling(subsampling or "4:2:0")
-        luma, luma_stats = self._run_luma(luma_t, subsampling, want_arrays)
+        luma = self._decode_luma(luma_t)
         if self.grayscale:
-            groups = [(luma_stats, True)]
             chroma = None
+            decoded = luma.plane
+            seen_luma = luma.plane
         else:
-            chroma = self._run_chroma(chroma_t, subsampling, want_arrays)
-            groups = [(luma_stats, True), (chroma.stats, False)]
+            chroma = self._decode_chroma(chroma_t, subsampling)
+            decoded = color.ycbcr_to_rgb(luma.plane, *chroma.planes)
+            seen_luma = color.luma(decoded)
+        scan = _scan(luma.q, None if chroma is None else chroma.q, subsampling)
         n_components = 1 if self.grayscale else 3
         n_qtables = 1 if self.grayscale else 2
-        optimal = entropy.file_size(groups, components=n_components, quant_tables=n_qtables, optimal=True)
-        standard = entropy.file_size(groups, components=n_components, quant_tables=n_qtables, optimal=False)
+        optimal = entropy.file_size(scan, components=n_components, quant_tables=n_qtables, optimal=True)
+        standard = entropy.file_size(scan, components=n_components, quant_tables=n_qtables, optimal=False)
+        luma_ssim = self._luma_reference().compare(seen_luma, want_map=want_arrays)
         fields = dict(
             setting=setting,
             estimated_bytes=optimal.total,
             standard_bytes=standard.total,
-            ssim=luma.ssim.ssim,
+            ssim=luma_ssim.ssim,
             ssim_cb=None if chroma is None else chroma.ssim_cb.ssim,
             ssim_cr=None if chroma is None else chroma.ssim_cr.ssim,
-            ssim_local=luma.ssim.local,
-            psnr=luma.ssim.psnr,
+            ssim_local=luma_ssim.local,
+            psnr=luma_ssim.psnr,
         )
         if not want_arrays:
             return SweepPoint(**fields)
-        if self.grayscale:
-            recon = luma.recon.astype(np.uint8)
-        else:
-            recon = color.ycbcr_to_rgb(luma.recon, *chroma.recon)
-        return Simulation(**fields, ssim_map=luma.ssim.ssim_map, reconstructed=recon, tables=(luma_t, chroma_t))
+        return Simulation(**fields, ssim_map=luma_ssim.ssim_map, reconstructed=decoded, tables=(luma_t, chroma_t))
 
 
 def simulate(

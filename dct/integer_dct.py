@@ -1,0 +1,181 @@
+"""libjpeg's accurate integer DCT ("islow"), forward and inverse, vectorized over every block.
+
+What this emulates
+------------------
+libjpeg-turbo's default DCT method, ``JDCT_ISLOW`` (``jfdctint.c`` for the encoder, ``jidctint.c`` for
+the decoder), which is what Pillow uses when it writes and reads a JPEG. The algorithm is the 1-D DCT
+factorisation of Loeffler, Ligtenberg and Moschytz ("Practical fast 1-D DCT algorithms with 11
+multiplications", ICASSP 1989), applied to the rows and then the columns of each 8x8 block, with its
+twelve irrational constants held as 13-bit fixed-point integers (``FIX(x) = round(x * 2**13)``; for
+example ``FIX(0.541196100) = 4433``, sqrt(2) * c6).
+
+Why a matrix and not the butterflies
+------------------------------------
+Inside one 1-D pass libjpeg only adds, subtracts and multiplies integers by those constants; it rounds
+once, at the end of the pass (``DESCALE(x, n) = (x + 2**(n-1)) >> n``, an arithmetic shift, so
+half-way cases round up). So each pass is an exact integer 8x8 matrix followed by one rounding shift.
+We build that matrix by running the butterflies on the unit vectors (:func:`_forward_butterfly`,
+:func:`_inverse_butterfly`, written from the factorisation) and then apply it to every block of a plane
+with one float64 matrix product per pass. float64 holds every intermediate exactly: the constants'
+sums stay below 2**16, inputs below 2**20 (a dequantized coefficient is at most 2**11 * 255), so each
+dot product of 8 terms stays below 2**40 < 2**53, and the power-of-two rounding shift is exact too.
+
+Scaling
+-------
+* Forward: rows produce ``sqrt(8) * 2**2`` times the orthonormal DCT of each row (``PASS1_BITS = 2``
+  extra bits of precision), columns remove the 2 bits again and leave the factor 8 that libjpeg's
+  quantizer expects: the output is ``8 * (C X C^T)`` rounded, where ``C`` is :func:`dct.dct_matrix`.
+  The DC and the (4) outputs are exact sums shifted by 2 bits, which we fold into the same matrix by
+  scaling those rows by ``2**13`` so that one rounding shift serves all eight outputs.
+* Inverse: input is dequantized coefficients (quantized value times table entry) on that same x8
+  scale; the column pass keeps ``PASS1_BITS`` extra bits (shift by ``13 - 2``), the row pass removes
+  them, the factor 8 and the constants' 13 bits (shift by ``13 + 2 + 3``). Then +128 and clamping to
+  0..255. libjpeg's C code masks out-of-range values through a table, its SIMD code (what x86 builds
+  run) saturates; we saturate, which agrees on every value a real quantizer can produce.
+
+Checked against: the quantized coefficients libjpeg writes (read back with ``jpeglib``) and the pixels
+Pillow decodes (tests/test_exact.py); and against the definition ``C X C^T`` within rounding
+(tests/test_integer_dct.py).
+"""
+
+from __future__ import annotations
+
+from functools import lru_cache
+
+import numpy as np
+
+CONST_BITS = 13
+PASS1_BITS = 2
+
+
+def _fix(x: float) -> int:
+    return int(x * (1 << CONST_BITS) + 0.5)
+
+
+# The LL&M constants, as libjpeg names their roles (sqrt(2) times cosine combinations).
+FIX_0_298631336 = _fix(0.298631336)  # sqrt(2) * (-c1 + c3 + c5 - c7)
+FIX_0_390180644 = _fix(0.390180644)  # sqrt(2) * (c5 - c3)
+FIX_0_541196100 = _fix(0.541196100)  # sqrt(2) * c6
+FIX_0_765366865 = _fix(0.765366865)  # sqrt(2) * (c2 - c6)
+FIX_0_899976223 = _fix(0.899976223)  # sqrt(2) * (c7 - c3)
+FIX_1_175875602 = _fix(1.175875602)  # sqrt(2) * c3
+FIX_1_501321110 = _fix(1.501321110)  # sqrt(2) * (c1 + c3 - c5 - c7)
+FIX_1_847759065 = _fix(1.847759065)  # sqrt(2) * (-c2 - c6)
+FIX_1_961570560 = _fix(1.961570560)  # sqrt(2) * (-c3 - c5)
+FIX_2_053119869 = _fix(2.053119869)  # sqrt(2) * (c1 + c3 - c5 + c7)
+FIX_2_562915447 = _fix(2.562915447)  # sqrt(2) * (-c1 - c3)
+FIX_3_072711026 = _fix(3.072711026)  # sqrt(2) * (c1 + c3 + c5 - c7)
+
+
+def _odd_rotations(t4, t5, t6, t7):
+    """The odd half of the LL&M flow graph (its figure 8): four inputs, four outputs, 12 products."""
+    z1, z2, z3, z4 = t4 + t7, t5 + t6, t4 + t6, t5 + t7
+    z5 = (z3 + z4) * FIX_1_175875602
+    t4 = t4 * FIX_0_298631336
+    t5 = t5 * FIX_2_053119869
+    t6 = t6 * FIX_3_072711026
+    t7 = t7 * FIX_1_501321110
+    z1 = z1 * -FIX_0_899976223
+    z2 = z2 * -FIX_2_562915447
+    z3 = z3 * -FIX_1_961570560 + z5
+    z4 = z4 * -FIX_0_390180644 + z5
+    return t4 + z1 + z3, t5 + z2 + z4, t6 + z2 + z3, t7 + z1 + z4
+
+
+def _forward_butterfly(x):
+    """One forward 1-D pass before rounding: 8 inputs -> 8 outputs on the 2**13 scale (exact ints)."""
+    t0, t7 = x[0] + x[7], x[0] - x[7]
+    t1, t6 = x[1] + x[6], x[1] - x[6]
+    t2, t5 = x[2] + x[5], x[2] - x[5]
+    t3, t4 = x[3] + x[4], x[3] - x[4]
+    t10, t13 = t0 + t3, t0 - t3
+    t11, t12 = t1 + t2, t1 - t2
+    z1 = (t12 + t13) * FIX_0_541196100
+    out = [None] * 8
+    out[0] = (t10 + t11) << CONST_BITS  # exact; scaled up so one rounding shift serves every output
+    out[4] = (t10 - t11) << CONST_BITS
+    out[2] = z1 + t13 * FIX_0_765366865
+    out[6] = z1 - t12 * FIX_1_847759065
+    out[7], out[5], out[3], out[1] = _odd_rotations(t4, t5, t6, t7)
+    return out
+
+
+def _inverse_butterfly(y):
+    """One inverse 1-D pass before rounding: the transpose flow of the forward pass (exact ints)."""
+    z2, z3 = y[2], y[6]
+    z1 = (z2 + z3) * FIX_0_541196100
+    t2 = z1 - z3 * FIX_1_847759065
+    t3 = z1 + z2 * FIX_0_765366865
+    t0 = (y[0] + y[4]) << CONST_BITS
+    t1 = (y[0] - y[4]) << CONST_BITS
+    t10, t13 = t0 + t3, t0 - t3
+    t11, t12 = t1 + t2, t1 - t2
+    o0, o1, o2, o3 = _odd_rotations(y[7], y[5], y[3], y[1])
+    return [t10 + o3, t11 + o2, t12 + o1, t13 + o0, t13 - o0, t12 - o1, t11 - o2, t10 - o3]
+
+
+@lru_cache(maxsize=None)
+def pass_matrix(kind: str) -> np.ndarray:
+    """The exact integer 8x8 matrix of one 1-D pass (``"forward"`` or ``"inverse"``), as float64.
+
+    Row k holds the weights of output k before the pass's rounding shift.
+    """
+    butterfly = {"forward": _forward_butterfly, "inverse": _inverse_butterfly}[kind]
+    unit = np.eye(8, dtype=np.int64)
+    columns = butterfly([unit[i] for i in range(8)])  # output k as a vector of input weights
+    return np.array(columns, dtype=np.float64)
+
+
+def _descale(x: np.ndarray, bits: int) -> np.ndarray:
+    """libjpeg's DESCALE on exact integers held in float64: floor((x + 2**(bits-1)) / 2**bits)."""
+    x += float(1 << (bits - 1))
+    x *= 1.0 / (1 << bits)
+    return np.floor(x, out=x)
+
+
+def forward_dct_islow(blocks: np.ndarray) -> np.ndarray:
+    """libjpeg's accurate integer forward DCT of level-shifted 8x8 blocks.
+
+    Parameters
+    ----------
+    blocks : ndarray, shape (..., 8, 8), integer values in -128..127
+        Samples minus 128 (``GETJSAMPLE(x) - CENTERJSAMPLE``), row-major within each block.
+
+    Returns
+    -------
+    ndarray, shape (..., 8, 8), int32
+        8 times the orthonormal DCT of each block, rounded as libjpeg rounds it (natural order).
+    """
+    m = pass_matrix("forward")
+    x = np.asarray(blocks, dtype=np.float64)
+    rows = _descale(x @ m.T, CONST_BITS - PASS1_BITS)  # each row of each block
+    cols = _descale(m @ rows, CONST_BITS + PASS1_BITS)  # then each column
+    return cols.astype(np.int32)
+
+
+def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
+    """libjpeg's accurate integer inverse DCT, with the +128 level shift and clamping to 0..255.
+
+    Parameters
+    ----------
+    coefficients : ndarray, shape (N, 8, 8), integer
+        Dequantized coefficients (quantized value times the table entry), natural order, on
+        libjpeg's x8 scale.
+
+    Returns
+    -------
+    ndarray, shape (N, 8, 8), uint8
+    """
+    m = pass_matrix("inverse")
+    z = np.asarray(coefficients, dtype=np.float64)
+    n = z.shape[0]
+    # Column pass: out[:, c] = M @ z[:, c] for every block, as one (8 x 8) @ (8 x 8N) product.
+    cols = m @ z.transpose(1, 0, 2).reshape(8, n * 8)
+    cols = _descale(cols, CONST_BITS - PASS1_BITS)
+    work = cols.reshape(8, n, 8).transpose(1, 0, 2)  # back to (N, row, col)
+    # Row pass: every row of every block through M, as one (8N x 8) @ (8 x 8) product.
+    out = work.reshape(n * 8, 8) @ m.T
+    out = _descale(out, CONST_BITS + PASS1_BITS + 3)
+    out += 128.0
+    np.clip(out, 0.0, 255.0, out=out)
+    return out.astype(np.uint8).reshape(n, 8, 8)
