@@ -27,9 +27,10 @@ Scaling
   quantizer expects: the output is ``8 * (C X C^T)`` rounded, where ``C`` is :func:`dct.dct_matrix`.
   The DC and the (4) outputs are exact sums shifted by 2 bits, which we fold into the same matrix by
   scaling those rows by ``2**13`` so that one rounding shift serves all eight outputs.
-* Inverse: input is dequantized coefficients (quantized value times table entry) on that same x8
-  scale; the column pass keeps ``PASS1_BITS`` extra bits (shift by ``13 - 2``), the row pass removes
-  them, the factor 8 and the constants' 13 bits (shift by ``13 + 2 + 3``). Then +128 and clamping to
+* Inverse: input is dequantized coefficients (quantized value times table entry), which are back
+  on the orthonormal scale since the quantizer divided by ``8 * Q``. Each pass multiplies by
+  ``sqrt(8)`` again; the column pass keeps ``PASS1_BITS`` extra bits (shift by ``13 - 2``), the row
+  pass removes them, the factor 8 and the constants' 13 bits (shift by ``13 + 2 + 3``). Then +128 and clamping to
   0..255. libjpeg's C code masks out-of-range values through a table, its SIMD code (what x86 builds
   run) saturates; we saturate, which agrees on every value a real quantizer can produce.
 
@@ -159,8 +160,8 @@ def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
     Parameters
     ----------
     coefficients : ndarray, shape (N, 8, 8), integer
-        Dequantized coefficients (quantized value times the table entry), natural order, on
-        libjpeg's x8 scale.
+        Dequantized coefficients (quantized value times the table entry), natural order: the
+        orthonormal scale.
 
     Returns
     -------

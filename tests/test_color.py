@@ -1,10 +1,11 @@
-"""Colour conversion against Pillow's JFIF YCbCr conversion (ITU-T T.871)."""
+"""Colour conversion against Pillow (ITU-T T.871 JFIF YCbCr). libjpeg's own conversion, downsampling and
+upsampling are checked bit for bit through its coefficients and decoded pixels in tests/test_exact.py."""
 
 import numpy as np
 from PIL import Image
 from skimage import data
 
-from dct.color import downsample, rgb_to_ycbcr, upsample, ycbcr_to_rgb
+from dct.color import downsample, luma, rgb_to_ycbcr, upsample, ycbcr_to_rgb
 
 
 def test_forward_matches_pillow_within_one_level():
@@ -31,7 +32,23 @@ def test_t871_primaries():
 
 
 def test_downsample_then_upsample_keeps_flat_planes():
-    plane = np.full((16, 24), 77.0, np.float32)
+    plane = np.full((16, 24), 77, np.uint8)
     small = downsample(plane, 2, 2)
     assert small.shape == (8, 12) and (small == 77).all()
     assert (upsample(small, 2, 2, 15, 23) == 77).all()
+
+
+def test_luma_equals_pillow_convert_L_on_every_colour():
+    # Pillow's "L" conversion (ITU-R 601-2 weights, 16-bit fixed point) rounds exactly as libjpeg's
+    # encoder computes Y: the engine's luma of decoded RGB is what Pillow's convert("L") gives.
+    r, g = np.meshgrid(np.arange(256), np.arange(256), indexing="ij")
+    for b in range(0, 256, 15):
+        rgb = np.stack([r, g, np.full_like(r, b)], -1).astype(np.uint8)
+        assert (luma(rgb) == np.asarray(Image.fromarray(rgb).convert("L"))).all()
+
+
+def test_downsample_bias_alternates():
+    # libjpeg's 2x2 average adds 1, 2, 1, 2, ... before the shift by 2, so equal half-way sums round
+    # down, then up, then down along a row (jcsample.c's h2v2 rule; checked end to end in test_exact).
+    plane = np.tile(np.array([[0, 1, 0, 1, 0, 1, 0, 1]], np.uint8), (2, 1))  # each 2x2 sums to 2
+    assert downsample(plane, 2, 2).tolist() == [[0, 1, 0, 1]]

@@ -8,6 +8,7 @@ import pytest
 from PIL import Image
 from skimage import data
 
+import dct
 from dct import entropy
 from tests.jpeg_markers import huffman_tables, scan_bytes, segments
 
@@ -68,18 +69,45 @@ def test_header_layout_matches_libjpeg():
             assert 2 + 2 + len(p) == entropy.dht_bytes(sum(p[1:17]))
 
 
-def test_stuffing_rate_is_close_to_measured_libjpeg():
-    # Measured on libjpeg output: the share of stuffed 0xFF 0x00 pairs in the scan is near 1/256
-    # (between 0.5/256 and 1.5/256 on scikit-image's sample photos).
+def test_stuffed_bytes_counted_exactly():
+    # The 0xFF 0x00 pairs in libjpeg's scan (Pillow, optimize=True) vs the engine's bit-exact count.
     for img in (data.astronaut(), data.coffee(), data.chelsea()):
+        prepared = dct.PreparedImage(img)
         for q in (40, 90):
+            setting = dct.Setting(q, 64, "4:2:0")
+            luma, chroma = setting.tables()
             buf = io.BytesIO()
-            Image.fromarray(img).save(buf, "JPEG", quality=q, optimize=True)
+            Image.fromarray(img).save(buf, "JPEG", qtables=[luma.ravel().tolist(), chroma.ravel().tolist()],
+                                      subsampling=2, optimize=True)
             scan = scan_bytes(buf.getvalue())
-            stuffed = scan.count(b"\xff\x00")
-            rate = stuffed / (len(scan) - stuffed)
-            assert 0.5 / 256 < rate < 1.5 / 256
-            assert 0.5 * rate < entropy.STUFFING_RATE < 2 * rate
+            size = prepared.size_breakdown(setting)
+            assert size.stuffed == scan.count(b"\xff\x00")
+            assert size.scan == len(scan)
+
+
+def test_optimal_tables_equal_libjpeg_dht():
+    # The DHT segments libjpeg writes with optimize=True (BITS and HUFFVAL, tie-breaks included) vs
+    # the tables the engine builds from its own symbol counts.
+    for img, sub in ((data.astronaut(), "4:2:0"), (data.camera(), "4:2:0"), (data.coffee(), "4:4:4")):
+        prepared = dct.PreparedImage(img)
+        for q in (10, 50, 85):
+            setting = dct.Setting(q, 64 if q != 50 else 20, sub)
+            luma, chroma = setting.tables()
+            buf = io.BytesIO()
+            qt = [luma.ravel().tolist()] if img.ndim == 2 else [luma.ravel().tolist(), chroma.ravel().tolist()]
+            Image.fromarray(img).save(buf, "JPEG", qtables=qt, subsampling={"4:4:4": 0, "4:2:0": 2}[sub], optimize=True)
+            theirs = huffman_tables(buf.getvalue())
+            ours = prepared.huffman_tables(setting)
+            for t, (bits, vals) in enumerate(ours):
+                assert theirs[(t % 2, t // 2)] == (list(bits), list(vals)), (q, t)
+
+
+def test_tie_break_takes_the_higher_symbol_first():
+    # Four symbols of equal count: the first merge joins the two highest indices (libjpeg's rule), so
+    # with the reserved pseudo-symbol (count 1, merged first) symbols 0 and 1 keep the short codes.
+    bits, huffval = entropy.optimal_table(np.array([5, 5, 5, 5]))
+    lengths = entropy.standard_code_lengths(bits, huffval, 4)
+    assert lengths.tolist() == [2, 2, 2, 3]
 
 
 def reference_huffman_cost(counts):

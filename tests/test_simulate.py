@@ -36,8 +36,8 @@ def pillow_encode(img, luma, chroma, subsampling, optimize=True):
     return buf.getvalue()
 
 
-def test_size_within_3_percent_of_libjpeg(capsys):
-    """Estimated bytes vs Pillow's libjpeg with the same tables, subsampling and optimize=True (±3 %)."""
+def test_size_equals_libjpeg(capsys):
+    """Bytes vs Pillow's libjpeg with the same tables, subsampling and optimize=True/False: byte for byte."""
     errors, std_errors = [], []
     for name, img in corpus().items():
         prepared = dct.PreparedImage(img)
@@ -54,8 +54,8 @@ def test_size_within_3_percent_of_libjpeg(capsys):
                     std_err = (point.standard_bytes - standard) / standard
                     errors.append(abs(err))
                     std_errors.append(abs(std_err))
-                    assert abs(err) <= 0.03, f"{name} {setting.label()}: {point.estimated_bytes} vs {actual}"
-                    assert abs(std_err) <= 0.03, f"{name} {setting.label()} (standard tables)"
+                    assert point.estimated_bytes == actual, f"{name} {setting.label()}: {point.estimated_bytes} vs {actual}"
+                    assert point.standard_bytes == standard, f"{name} {setting.label()} (standard tables)"
     with capsys.disabled():
         print(
             f"\n[size vs libjpeg, {len(errors)} cases] optimal tables: median {np.median(errors):.2%}, "
@@ -135,8 +135,9 @@ def test_odd_sizes_work_and_keep_shape(h, w):
     img = rng.integers(0, 256, (h, w, 3), dtype=np.uint8)
     sim = dct.simulate(img, 75, "4:2:0")
     assert sim.reconstructed.shape == (h, w, 3) and sim.ssim_map.shape == (h, w)
-    actual = len(pillow_encode(img, *sim.tables, "4:2:0"))
-    assert abs(sim.estimated_bytes - actual) / actual < 0.03
+    data_ = pillow_encode(img, *sim.tables, "4:2:0")
+    assert sim.estimated_bytes == len(data_)
+    assert (np.asarray(Image.open(io.BytesIO(data_))) == sim.reconstructed).all()
 
 
 @pytest.mark.parametrize(
