@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Iterable
 
 import numpy as np
@@ -64,22 +65,12 @@ def _ceil_div(a: int, b: int) -> int:
     return -(-a // b)
 
 
-def reciprocal_divisors(table_natural: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """libjpeg-turbo's reciprocal quantizer for a table (``compute_reciprocal`` in jcdctmgr.c).
-
-    The divisor of the integer DCT's output is ``8 * Q``. Instead of dividing, libjpeg multiplies by
-    ``fq ~ 2**r / d`` after adding a correction ``c ~ d / 2``: ``q = ((|t| + c) * fq) >> r``, with
-    the sign restored. The correction absorbs the error of the rounded reciprocal, so the result is
-    round-half-up of ``|t| / d`` as its division-based code computes it.
-
-    Returns
-    -------
-    fq, c, r : ndarray, shape (64,), int64 — natural order.
-    """
-    d = 8 * np.asarray(table_natural, dtype=np.int64).reshape(64)
-    fq = np.empty(64, np.int64)
-    c = np.empty(64, np.int64)
-    r = np.empty(64, np.int64)
+@lru_cache(maxsize=4096)
+def _reciprocals(table_bytes: bytes) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    d = 8 * np.frombuffer(table_bytes, dtype=np.int32).astype(np.int64)
+    fq = np.empty(d.size, np.int32)
+    c = np.empty(d.size, np.int32)
+    r = np.empty(d.size, np.int32)
     for i, di in enumerate(d.tolist()):
         b = di.bit_length() - 1
         ri = _DCTELEM_BITS + b
@@ -96,22 +87,42 @@ def reciprocal_divisors(table_natural: np.ndarray) -> tuple[np.ndarray, np.ndarr
     return fq, c, r
 
 
-def quantize(coefficients: np.ndarray, table_natural: np.ndarray) -> np.ndarray:
+def reciprocal_divisors(table: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """libjpeg-turbo's reciprocal quantizer for a table (``compute_reciprocal`` in jcdctmgr.c).
+
+    The divisor of the integer DCT's output is ``d = 8 * Q``. Instead of dividing, libjpeg multiplies
+    by ``fq ~ 2**r / d`` after adding a correction ``c ~ d / 2``: ``q = ((|t| + c) * fq) >> r``, with
+    the sign restored; ``r`` is 16 (the SIMD builds' DCTELEM width) plus ``floor(log2 d)``. The
+    correction absorbs the reciprocal's rounding. Every product fits in 32 bits: ``|t| + c < 2**14``
+    (8-bit samples) and ``fq < 2**16``.
+
+    Returns
+    -------
+    fq, c, r : ndarray, shape (64,), int32 — in the table's order.
+    """
+    return _reciprocals(np.ascontiguousarray(np.asarray(table, dtype=np.int32).reshape(64)).tobytes())
+
+
+def quantize(coefficients: np.ndarray, table: np.ndarray) -> np.ndarray:
     """Quantize libjpeg-scaled DCT coefficients the way libjpeg-turbo does.
 
     Parameters
     ----------
-    coefficients : ndarray, shape (..., 64), int32 — natural order, the integer DCT's x8 scale.
-    table_natural : ndarray, shape (8, 8) or (64,) — quantization table entries 1..255.
+    coefficients : ndarray, shape (..., 64), int32 — on the integer DCT's x8 scale.
+    table : ndarray, shape (8, 8) or (64,) — quantization table entries 1..255, in the same order as
+        the coefficients' last axis (natural, or both zigzag).
 
     Returns
     -------
     ndarray, same shape, int32.
     """
-    fq, c, r = reciprocal_divisors(table_natural)
-    t = coefficients.astype(np.int64)
-    mag = ((np.abs(t) + c) * fq) >> r
-    return np.where(t < 0, -mag, mag).astype(np.int32)
+    fq, c, r = reciprocal_divisors(table)
+    t = np.asarray(coefficients, dtype=np.int32)
+    mag = np.abs(t)
+    mag += c
+    mag *= fq
+    mag >>= r
+    return np.where(t < 0, -mag, mag)
 
 
 def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
@@ -144,39 +155,41 @@ def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
 def _scan(luma_q: np.ndarray, chroma_q: tuple[np.ndarray, np.ndarray] | None, subsampling: str) -> entropy.Scan:
     """The file's single scan: blocks interleaved MCU by MCU (Y blocks, then Cb, then Cr), zigzag."""
     if chroma_q is None:  # one component: a non-interleaved scan of the real blocks in raster order
-        y = luma_q.reshape(-1, 64)[:, ZIGZAG]
+        y = luma_q.reshape(-1, 64)
         return entropy.scan_symbols(y, np.zeros(y.shape[0], np.int8), (0,))
     h, v = SAMPLING_FACTORS[subsampling]
-    y = _coding_order(luma_q, h, v)[:, ZIGZAG]
+    y = _coding_order(luma_q, h, v)
     mcus = y.shape[0] // (h * v)
     per_mcu = h * v + 2
     blocks = np.empty((mcus, per_mcu, 64), dtype=np.int32)
     blocks[:, : h * v] = y.reshape(mcus, h * v, 64)
-    blocks[:, h * v] = chroma_q[0].reshape(-1, 64)[:, ZIGZAG]
-    blocks[:, h * v + 1] = chroma_q[1].reshape(-1, 64)[:, ZIGZAG]
+    blocks[:, h * v] = chroma_q[0].reshape(-1, 64)
+    blocks[:, h * v + 1] = chroma_q[1].reshape(-1, 64)
     component = np.tile(np.array([0] * (h * v) + [1, 2], np.int8), mcus)
     return entropy.scan_symbols(blocks.reshape(-1, 64), component, (0, 1, 1))
 
 
 def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int) -> np.ndarray:
-    """Dequantize, integer inverse DCT and crop one component to its real rows x cols; uint8."""
+    """Dequantize zigzag blocks, integer inverse DCT and crop one component to rows x cols; uint8."""
     nby, nbx, _ = q.shape
-    deq = q.reshape(-1, 8, 8) * np.asarray(table_natural, dtype=np.int32).reshape(8, 8)
+    deq = q.reshape(-1, 64)[:, UNZIGZAG] * np.asarray(table_natural, dtype=np.int32).reshape(64)
+    deq = deq.reshape(-1, 8, 8)
     blocks = inverse_dct_islow(deq)
     plane = blocks.reshape(nby, nbx, BLOCK, BLOCK).transpose(0, 2, 1, 3).reshape(nby * BLOCK, nbx * BLOCK)
     return plane[:rows, :cols]
 
 
 def _blocks(plane: np.ndarray) -> np.ndarray:
-    """Level-shift and integer-DCT a plane whose sides are multiples of 8: (nby, nbx, 64) int32, natural."""
+    """Level-shift and integer-DCT a plane whose sides are multiples of 8: (nby, nbx, 64) int32, zigzag."""
     h, w = plane.shape
     b = plane.reshape(h // BLOCK, BLOCK, w // BLOCK, BLOCK).transpose(0, 2, 1, 3).astype(np.int32) - 128
-    return forward_dct_islow(b).reshape(h // BLOCK, w // BLOCK, 64)
+    coef = forward_dct_islow(b).reshape(h // BLOCK, w // BLOCK, 64)
+    return np.ascontiguousarray(coef[..., ZIGZAG])
 
 
 @dataclass
 class _LumaDecode:
-    q: np.ndarray  # quantized blocks, natural order
+    q: np.ndarray  # quantized blocks, zigzag order
     plane: np.ndarray  # decoded Y, (H, W) uint8
 
 
@@ -289,11 +302,11 @@ class PreparedImage:
             level-shifted block, rounded by its integer DCT. Chroma blocks are those of the mode's
             downsampled planes.
         """
-        luma = self._luma_blocks()[..., ZIGZAG]
+        luma = self._luma_blocks()
         if self.grayscale:
             return (luma,)
         cb, cr = self._chroma_blocks(check_subsampling(subsampling))
-        return (luma, cb[..., ZIGZAG], cr[..., ZIGZAG])
+        return (luma, cb, cr)
 
     def _luma_reference(self) -> quality.ReferenceStats:
         if self._luma_ref is None:
@@ -315,7 +328,7 @@ class PreparedImage:
         key = table.tobytes()
         cached = self._luma_cache.get(key)
         if cached is None:
-            q = quantize(self._luma_blocks(), table)
+            q = quantize(self._luma_blocks(), table.reshape(64)[ZIGZAG])
             cached = _LumaDecode(q, _decode_plane(q, table, self.height, self.width))
             self._luma_cache[key] = cached
         return cached
@@ -328,7 +341,7 @@ class PreparedImage:
             rows, cols = _ceil_div(self.height, v), _ceil_div(self.width, h)
             qs, planes = [], []
             for blocks in self._chroma_blocks(subsampling):
-                q = quantize(blocks, table)
+                q = quantize(blocks, table.reshape(64)[ZIGZAG])
                 qs.append(q)
                 planes.append(color.upsample(_decode_plane(q, table, rows, cols), h, v, self.height, self.width))
             ref_cb, ref_cr = self._chroma_reference()
