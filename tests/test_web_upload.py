@@ -78,11 +78,41 @@ def test_api_upload_takes_class_from_folder_and_reports_rejects(client):
     assert body["rejected"] == [{"filename": "hero/notes.jpg", "error": str(decoder.value)}]
 
 
+def raw_upload(client, parts):
+    """POST multipart bytes exactly as given, so the Content-Disposition filename is what a client sends."""
+    boundary = "eightfoldboundary"
+    body = b""
+    for filename_on_wire, data in parts:
+        body += (f"--{boundary}\r\nContent-Disposition: form-data; name=\"files\"; filename=\"{filename_on_wire}\"\r\n"
+                 f"Content-Type: application/octet-stream\r\n\r\n").encode() + data + b"\r\n"
+    body += f"--{boundary}--\r\n".encode()
+    return client.post("/api/sample-sets", data=body, content_type=f"multipart/form-data; boundary={boundary}")
+
+
 def test_class_is_the_part_before_the_first_slash(client):
-    r = upload(client, [("lifestyle/summer/tent.png", png_bytes(ASTRO)), ("\\banner\\wide.png", png_bytes(COFFEE))])
+    r = upload(client, [("lifestyle/summer/tent.png", png_bytes(ASTRO)), ("/banner/./wide.png", png_bytes(COFFEE))])
     images = r.get_json()["images"]
     assert [(i["filename"], i["class"]) for i in images] == [
         ("lifestyle/summer/tent.png", "lifestyle"), ("banner/wide.png", "banner")]
+
+
+def test_backslashes_in_uploaded_names(client):
+    """What a backslash in a multipart file name means (RFC 9110 section 5.6.4 quoted strings).
+
+    Browsers send folder uploads with "/" (webkitRelativePath), which is what our upload page sends.
+    Inside the quoted filename a backslash escapes the next character, and Werkzeug (>= 3.1.9, the
+    lowest version pyproject allows) decodes it so: a raw ``banner\\wide.png`` arrives as
+    ``bannerwide.png`` and is unclassified. A client that escapes its backslashes (``\\\\``) delivers
+    a literal backslash, which Eightfold reads as a folder separator, as Windows paths use it.
+    """
+    r = raw_upload(client, [
+        ("product/boot.png", png_bytes(ASTRO)),
+        ("banner\\\\wide.png", png_bytes(COFFEE)),  # escaped on the wire: banner\\wide.png
+        ("thumbs\\tent.png", png_bytes(ASTRO[::2, ::2].copy())),  # raw backslash: an escape
+    ])
+    assert r.status_code == 201, r.get_data(as_text=True)
+    assert [(i["filename"], i["class"]) for i in r.get_json()["images"]] == [
+        ("product/boot.png", "product"), ("banner/wide.png", "banner"), ("thumbstent.png", "unclassified")]
 
 
 @pytest.mark.parametrize(
