@@ -24,6 +24,7 @@ the luma quantization and inverse DCT across subsampling modes and the chroma wo
 from __future__ import annotations
 
 import math
+from collections import OrderedDict
 from dataclasses import dataclass, field
 from functools import lru_cache
 from typing import Iterable
@@ -187,15 +188,25 @@ def _blocks(plane: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(coef[..., ZIGZAG])
 
 
-@dataclass
-class _LumaDecode:
-    q: np.ndarray  # quantized blocks, zigzag order
-    plane: np.ndarray  # decoded Y, (H, W) uint8
+class _Recent:
+    """A small cache of the most recently used entries."""
+
+    def __init__(self, size: int):
+        self.size = size
+        self._items: OrderedDict = OrderedDict()
+
+    def get(self, key, make):
+        if key in self._items:
+            self._items.move_to_end(key)
+            return self._items[key]
+        value = self._items[key] = make()
+        if len(self._items) > self.size:
+            self._items.popitem(last=False)
+        return value
 
 
 @dataclass
 class _ChromaDecode:
-    q: tuple[np.ndarray, np.ndarray]
     planes: tuple[np.ndarray, np.ndarray]  # upsampled Cb, Cr, (H, W) uint8
     ssim_cb: quality.SsimResult
     ssim_cr: quality.SsimResult
@@ -272,8 +283,13 @@ class PreparedImage:
         self._chroma: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         self._luma_ref: quality.ReferenceStats | None = None
         self._chroma_ref: tuple[quality.ReferenceStats, quality.ReferenceStats] | None = None
-        self._luma_cache: dict[bytes, _LumaDecode] = {}
-        self._chroma_cache: dict[tuple[str, bytes], _ChromaDecode] = {}
+        # Per-table work shared between settings (luma across subsampling modes, chroma across luma
+        # tables). Sweeps visit a table's settings together, so a few recent entries suffice and memory
+        # stays bounded on large images.
+        self._luma_q = _Recent(4)
+        self._chroma_q = _Recent(4)
+        self._luma_planes = _Recent(2)
+        self._chroma_planes = _Recent(2)
 
     # -- transforms, done once ---------------------------------------------------------------
 
@@ -323,49 +339,53 @@ class PreparedImage:
 
     # -- per setting -------------------------------------------------------------------------
 
-    def _decode_luma(self, table: np.ndarray) -> _LumaDecode:
+    def _quantized_luma(self, table: np.ndarray) -> np.ndarray:
+        return self._luma_q.get(table.tobytes(), lambda: quantize(self._luma_blocks(), table.reshape(64)[ZIGZAG]))
+
+    def _quantized_chroma(self, table: np.ndarray, subsampling: str) -> tuple[np.ndarray, np.ndarray]:
+        tz = table.reshape(64)[ZIGZAG]
+        return self._chroma_q.get(
+            (subsampling, table.tobytes()), lambda: tuple(quantize(b, tz) for b in self._chroma_blocks(subsampling))
+        )
+
+    def _decode_luma(self, table: np.ndarray) -> np.ndarray:
         # The luma blocks, their quantization and inverse DCT do not depend on the subsampling mode.
-        key = table.tobytes()
-        cached = self._luma_cache.get(key)
-        if cached is None:
-            q = quantize(self._luma_blocks(), table.reshape(64)[ZIGZAG])
-            cached = _LumaDecode(q, _decode_plane(q, table, self.height, self.width))
-            self._luma_cache[key] = cached
-        return cached
+        return self._luma_planes.get(
+            table.tobytes(), lambda: _decode_plane(self._quantized_luma(table), table, self.height, self.width)
+        )
 
     def _decode_chroma(self, table: np.ndarray, subsampling: str) -> _ChromaDecode:
-        key = (subsampling, table.tobytes())
-        cached = self._chroma_cache.get(key)
-        if cached is None:
+        def decode() -> _ChromaDecode:
             h, v = SAMPLING_FACTORS[subsampling]
             rows, cols = _ceil_div(self.height, v), _ceil_div(self.width, h)
-            qs, planes = [], []
-            for blocks in self._chroma_blocks(subsampling):
-                q = quantize(blocks, table.reshape(64)[ZIGZAG])
-                qs.append(q)
-                planes.append(color.upsample(_decode_plane(q, table, rows, cols), h, v, self.height, self.width))
+            planes = [color.upsample(_decode_plane(q, table, rows, cols), h, v, self.height, self.width)
+                      for q in self._quantized_chroma(table, subsampling)]
             ref_cb, ref_cr = self._chroma_reference()
-            cached = _ChromaDecode(
-                (qs[0], qs[1]), (planes[0], planes[1]), ref_cb.compare(planes[0]), ref_cr.compare(planes[1])
-            )
-            self._chroma_cache[key] = cached
-        return cached
+            return _ChromaDecode((planes[0], planes[1]), ref_cb.compare(planes[0]), ref_cr.compare(planes[1]))
 
-    def size_breakdown(self, setting: Setting, *, optimal: bool = True) -> entropy.FileSize:
-        """The file's size in parts (headers, entropy-coded bytes, stuffed bytes) for one setting."""
-        luma_t, chroma_t = setting.tables()
-        luma = self._decode_luma(luma_t)
-        chroma = None if self.grayscale else self._decode_chroma(chroma_t, setting.subsampling)
-        scan = _scan(luma.q, None if chroma is None else chroma.q, setting.subsampling)
+        return self._chroma_planes.get((subsampling, table.tobytes()), decode)
+
+    def _scan(self, luma_t: np.ndarray, chroma_t: np.ndarray, subsampling: str) -> entropy.Scan:
+        chroma_q = None if self.grayscale else self._quantized_chroma(chroma_t, subsampling)
+        return _scan(self._quantized_luma(luma_t), chroma_q, subsampling)
+
+    def _file_size(self, scan: entropy.Scan, optimal: bool) -> entropy.FileSize:
         return entropy.file_size(scan, components=1 if self.grayscale else 3,
                                  quant_tables=1 if self.grayscale else 2, optimal=optimal)
+
+    def size_breakdown(self, setting: Setting, *, optimal: bool = True) -> entropy.FileSize:
+        """The file's exact size in parts (headers, entropy-coded bytes, stuffed bytes) for one setting.
+
+        Needs only quantization and entropy coding (no decode, no SSIM): the cheap, exact way to
+        know a setting's bytes.
+        """
+        luma_t, chroma_t = setting.tables()
+        return self._file_size(self._scan(luma_t, chroma_t, setting.subsampling), optimal)
 
     def huffman_tables(self, setting: Setting) -> list[tuple[tuple[int, ...], tuple[int, ...]]]:
         """The optimal Huffman tables (BITS, HUFFVAL) of one setting: DC, AC per table pair."""
         luma_t, chroma_t = setting.tables()
-        luma = self._decode_luma(luma_t)
-        chroma = None if self.grayscale else self._decode_chroma(chroma_t, setting.subsampling)
-        scan = _scan(luma.q, None if chroma is None else chroma.q, setting.subsampling)
+        scan = self._scan(luma_t, chroma_t, setting.subsampling)
         return [entropy.optimal_table(scan.counts(t)) for t in range(2 * scan.groups)]
 
     def evaluate(
@@ -389,17 +409,14 @@ class PreparedImage:
         luma = self._decode_luma(luma_t)
         if self.grayscale:
             chroma = None
-            decoded = luma.plane
-            seen_luma = luma.plane
+            decoded = seen_luma = luma
         else:
             chroma = self._decode_chroma(chroma_t, subsampling)
-            decoded = color.ycbcr_to_rgb(luma.plane, *chroma.planes)
+            decoded = color.ycbcr_to_rgb(luma, *chroma.planes)
             seen_luma = color.luma(decoded)
-        scan = _scan(luma.q, None if chroma is None else chroma.q, subsampling)
-        n_components = 1 if self.grayscale else 3
-        n_qtables = 1 if self.grayscale else 2
-        optimal = entropy.file_size(scan, components=n_components, quant_tables=n_qtables, optimal=True)
-        standard = entropy.file_size(scan, components=n_components, quant_tables=n_qtables, optimal=False)
+        scan = self._scan(luma_t, chroma_t, subsampling)
+        optimal = self._file_size(scan, True)
+        standard = self._file_size(scan, False)
         luma_ssim = self._luma_reference().compare(seen_luma, want_map=want_arrays)
         fields = dict(
             setting=setting,
