@@ -489,7 +489,13 @@ def sweep(rgb: np.ndarray | PreparedImage, settings: Iterable[Setting]) -> list[
     for s in settings:
         if not isinstance(s, Setting):
             raise ValueError(f"settings must be dct.Setting objects, got {s!r}")
-    return [prepared.evaluate(s) for s in settings]
+    # Visit settings that share a luma table (same quality and cutoff) one after another, so its
+    # quantization and inverse DCT are done once for all subsampling modes.
+    order = sorted(range(len(settings)), key=lambda i: (settings[i].quality, settings[i].cutoff))
+    points: list[SweepPoint | None] = [None] * len(settings)
+    for i in order:
+        points[i] = prepared.evaluate(settings[i])
+    return points
 
 
 __all__ = ["PreparedImage", "Simulation", "SweepPoint", "quant_tables", "simulate", "sweep"]
