@@ -489,9 +489,13 @@ def add_snapshot(conn, edit_token: str, params: dict, document: dict) -> str:
 
 
 def _snapshot_dict(row) -> dict:
+    """A snapshot row with its JSON parsed; parsed once per snapshot (frozen, so it never changes)."""
+    from webapp import snapshots
+
+    parsed = snapshots.derived(row["view_token"], "row", None,
+                               lambda: (json.loads(row["params"]), json.loads(row["document"])))
     d = dict(row)
-    d["params"] = json.loads(d["params"])
-    d["document"] = json.loads(d["document"])
+    d["params"], d["document"] = parsed
     return d
 
 

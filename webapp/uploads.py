@@ -4,7 +4,7 @@ Werkzeug's own form parser keeps nothing when one part's headers are not UTF-8 (
 arrives empty), and its part limit answers with the generic "too large" message. The upload routes
 read the body here instead, with werkzeug's sans-IO multipart decoder: a header that is not UTF-8
 is read as Latin-1 (what HTTP headers were before UTF-8), each file goes to disk in 1 MB steps
-while its sha256 is taken, and too many parts get a message of their own.
+while its sha256 is taken (64 KB at a time), and too many parts get a message of their own.
 """
 
 from __future__ import annotations
@@ -21,7 +21,7 @@ from werkzeug.exceptions import BadRequest, RequestEntityTooLarge
 from werkzeug.http import parse_options_header
 from werkzeug.sansio.multipart import Data, Epilogue, Field, File, MultipartDecoder, NeedData
 
-CHUNK = 1 << 20
+CHUNK = 64 * 1024  # read size; the decoder's buffer bound (below) must stay above it
 MAX_FIELD_BYTES = 64 * 1024  # plain form fields (the CSRF token) are short
 
 
@@ -75,16 +75,19 @@ def receive(root, *, max_files: int) -> Received:
     if mimetype != "multipart/form-data" or not options.get("boundary"):
         return got
     # Parts beyond the file limit are still read (and dropped), up to a bound on the work.
-    decoder = LenientDecoder(options["boundary"].encode("latin-1"), max_form_memory_size=MAX_FIELD_BYTES,
+    # max_form_memory_size bounds the decoder's buffer (a part's headers, or one chunk of data).
+    decoder = LenientDecoder(options["boundary"].encode("latin-1"), max_form_memory_size=4 * CHUNK,
                              max_parts=4 * max_files + 16)
     stream = request.stream  # werkzeug stops it at MAX_CONTENT_LENGTH with a 413
-    current, sink, hasher, size, field_bytes = None, None, None, 0, []
+    current, sink, hasher, size, field_bytes, parts_seen = None, None, None, 0, [], 0
     try:
         while True:
             chunk = stream.read(CHUNK)
             decoder.receive_data(chunk or None)
             event = decoder.next_event()
             while not isinstance(event, (NeedData, Epilogue)):
+                if isinstance(event, (File, Field)):
+                    parts_seen += 1
                 if isinstance(event, File):
                     current, size = event, 0
                     if len(got.parts) >= max_files:
@@ -108,6 +111,8 @@ def receive(root, *, max_files: int) -> Received:
                             sink = None
                     elif isinstance(current, Field):
                         field_bytes.append(event.data)
+                        if sum(map(len, field_bytes)) > MAX_FIELD_BYTES:
+                            raise RequestEntityTooLarge(description=f"form field {current.name!r} is too long")
                         if not event.more_data:
                             got.fields[current.name] = b"".join(field_bytes).decode("utf-8", "replace")
                 event = decoder.next_event()
@@ -115,8 +120,7 @@ def receive(root, *, max_files: int) -> Received:
                 break
     except RequestEntityTooLarge as exc:
         got.discard()
-        if exc.description == RequestEntityTooLarge.description and decoder.max_parts is not None \
-                and len(got.parts) >= max_files:
+        if parts_seen >= decoder.max_parts:
             raise RequestEntityTooLarge(
                 description=f"too many files in one upload: a sample set holds at most {max_files}") from None
         raise
