@@ -349,3 +349,31 @@ def test_page_client_really_sends_the_token(world):
     # the helper the other web tests rely on: its header is what makes their posts pass
     assert isinstance(world["app"].test_client(), PageClient)
     assert world["app"].test_client().page_token()
+
+
+# --- frozen snapshots are rendered once ---------------------------------------------------------------------
+
+
+def test_frozen_budget_is_derived_once_and_follows_signoffs(world, monkeypatch):
+    from webapp import results
+
+    links = world["owner"].post(f"/api/sweeps/{world['sweep']}/freeze", json={}).get_json()
+    view = links["token"]
+    calls = []
+    real = results.rejections
+    monkeypatch.setattr(results, "rejections", lambda *a, **k: calls.append(1) or real(*a, **k))
+    first, second = world["app"].test_client(), world["app"].test_client()
+    page1 = first.get(f"/budgets/{view}").get_data(as_text=True)
+    assert calls, "the page derives the reasons once"
+    n = len(calls)
+    page2 = second.get(f"/budgets/{view}").get_data(as_text=True)
+    assert len(calls) == n  # the second reader is served what the first one's view derived
+    token1, token2 = (re.search(r'name="csrf-token" content="([^"]+)"', p).group(1) for p in (page1, page2))
+    assert token1 != token2 and token1 not in page2  # each reader gets the page with their own token
+    r = raw_client(world["app"])
+    r.set_cookie("session", second.get_cookie("session").value)
+    resp = r.post(f"/budgets/{view}/signoffs", data={**SIGNOFF, "name": "Priya Ocampo", "csrf_token": token2})
+    assert resp.status_code == 303
+    assert "Priya Ocampo" in first.get(f"/budgets/{view}").get_data(as_text=True)  # the new sign-off shows
+    assert "Priya Ocampo" in first.get(f"/api/budgets/{view}").get_data(as_text=True)
+    assert len(calls) == n  # ... without deriving the frozen parts again

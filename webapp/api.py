@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from flask import Blueprint, current_app, jsonify, request, url_for
 
-from webapp import budgets, store, validation
+from webapp import budgets, snapshots, store, validation
 from webapp.samplesets import ingest_upload, receive_upload
 from webapp.sweeps import redecide
 from webapp.views import json_error
@@ -153,6 +153,12 @@ def get_budget(token):
     if found is None:
         return json_error("no budget behind this token", 404)
     role, snapshot, budget = found
+    key = budgets.page_key(db, "json", token, role, snapshot, budget)
+    data = snapshots.page(key, lambda: _budget_json(db, role, snapshot, budget), csrf_token="\x00unused\x00")
+    return current_app.response_class(data, mimetype="application/json")
+
+
+def _budget_json(db, role, snapshot, budget) -> str:
     body = dict(snapshot["document"])
     body["signoffs"] = store.signoffs_for(db, snapshot["view_token"])
     body["budget"] = {"snapshot": snapshot["seq"], "frozen": snapshot["created"], "access": role}
@@ -161,7 +167,7 @@ def get_budget(token):
             {"snapshot": s["seq"], "token": s["view_token"], "frozen": s["created"]}
             for s in store.list_snapshots(db, budget["edit_token"])
         ]
-    return jsonify(body)
+    return jsonify(body).get_data(as_text=True)
 
 
 @bp.post("/budgets/<token>/signoffs")

@@ -114,10 +114,24 @@ def freeze_page(sweep_id):
     return redirect(url_for("budgets.show", token=edit_token), code=303)
 
 
+def page_key(db, kind, token, role, snapshot, budget):
+    """What a budget link's response depends on (see ``webapp.snapshots.page``)."""
+    from webapp.security import login_enabled, session_ok
+
+    return (kind, token, snapshot["view_token"], request.host_url, login_enabled() and session_ok(),
+            store.budget_version(db, role, snapshot["view_token"], budget["edit_token"]))
+
+
 @bp.get("/budgets/<token>")
 def show(token):
+    from flask import session
+    from flask_wtf.csrf import generate_csrf
+
     db, role, snapshot, budget = resolve(token)
-    return render_template("budget.html", **page_context(db, role, snapshot, budget))
+    render = lambda: render_template("budget.html", **page_context(db, role, snapshot, budget))  # noqa: E731
+    if session.get("_flashes"):
+        return render()  # a pending message is shown (and used up) once: not a page to keep
+    return snapshots.page(page_key(db, "page", token, role, snapshot, budget), render, generate_csrf())
 
 
 @bp.post("/budgets/<token>/signoffs")

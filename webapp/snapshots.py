@@ -45,3 +45,30 @@ def forget(view_tokens) -> None:
 
 def entry_key(entry: dict):
     return entry.get("name"), entry.get("width")
+
+
+# --- whole pages -------------------------------------------------------------------------------------
+# A budget page is a function of its snapshot (frozen), its sign-offs (append-only: their count and
+# last id say whether any were added), the owner's snapshot list, the host its links use, and the
+# login state. Keyed on all of those, a rendered page can be served again as is, except the
+# per-session CSRF token, which is cut out before caching and put back for each reader.
+
+MAX_PAGES = 256
+CSRF_SLOT = "\x00csrf\x00"
+_pages: OrderedDict = OrderedDict()
+
+
+def page(key, render, csrf_token: str) -> str:
+    """``render()`` (a page carrying ``csrf_token``) once per key; later readers get it with their token."""
+    with _lock:
+        cached = _pages.get(key)
+        if cached is not None:
+            _pages.move_to_end(key)
+    if cached is None:
+        html = render()
+        cached = html.replace(csrf_token, CSRF_SLOT)
+        with _lock:
+            _pages[key] = cached
+            while len(_pages) > MAX_PAGES:
+                _pages.popitem(last=False)
+    return cached.replace(CSRF_SLOT, csrf_token)

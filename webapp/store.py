@@ -518,6 +518,17 @@ def resolve_token(conn, token: str):
     return "edit", _snapshot_dict(latest), dict(budget)
 
 
+def budget_version(conn, role: str, view_token: str, edit_token: str) -> tuple:
+    """Changes whenever what a budget link shows changes: sign-offs added, or (owner link) a re-freeze."""
+    if role == "view":
+        return tuple(conn.execute(
+            "SELECT COUNT(*), COALESCE(MAX(id), 0) FROM signoffs WHERE view_token = ?", (view_token,)).fetchone())
+    return tuple(conn.execute(
+        "SELECT (SELECT COUNT(*) FROM snapshots WHERE edit_token = ?), COUNT(*), COALESCE(MAX(s.id), 0)"
+        " FROM signoffs s JOIN snapshots p ON p.view_token = s.view_token WHERE p.edit_token = ?",
+        (edit_token, edit_token)).fetchone())
+
+
 def list_snapshots(conn, edit_token: str):
     return conn.execute(
         "SELECT view_token, seq, created, (SELECT COUNT(*) FROM signoffs s WHERE s.view_token = snapshots.view_token)"
