@@ -42,7 +42,7 @@ logging.getLogger("waitress.queue").setLevel(logging.ERROR)  # the queue warning
 from webapp import create_app
 from webapp.server import WAITRESS_LIMITS
 app = create_app({"DATA_DIR": sys.argv[1], "SWEEP_WORKERS": 1, "SWEEP_GRID": json.loads(sys.argv[3])})
-serve(app, host="127.0.0.1", port=int(sys.argv[2]), threads=8, **WAITRESS_LIMITS)
+serve(app, host="127.0.0.1", port=int(sys.argv[2]), threads=12, **WAITRESS_LIMITS)
 """
 
 

@@ -7,6 +7,7 @@ import json
 import os
 import stat
 import threading
+import time
 
 import numpy as np
 import pytest
@@ -148,24 +149,36 @@ def test_concurrent_uploads_decode_at_most_the_pool_size_at_once(app):
 
 def test_a_full_pool_answers_503_with_retry_after(tmp_path):
     app = create_app({"TESTING": True, "DATA_DIR": str(tmp_path / "d"), "SWEEP_AUTORESUME": False,
-                      "UPLOAD_SLOTS": 1})
+                      "UPLOAD_SLOTS": 1, "UPLOAD_WAIT_S": 0.2})
     try:
         pool = app.extensions["eightfold_decode_pool"]
         with pool.upload_slot():  # another upload holds the only slot
-            import webapp.decoding as decoding
+            r = upload(app.test_client(), [("c/x.png", X)])  # waits 0.2 s for it, then gives up
+            assert r.status_code == 503 and r.headers["Retry-After"] == "30"
+            assert "checking other uploads" in r.get_json()["error"]
+            # one more may wait; the one after that is refused at once instead of holding a thread
+            entered = threading.Event()
 
-            real = decoding.DecodePool.upload_slot
+            def wait_in_line():
+                try:
+                    with pool.upload_slot(wait_s=2.0):
+                        pass
+                except Exception:
+                    pass
+                entered.set()
 
-            def quick(self, wait_s=5.0):
-                return real(self, wait_s=0.1)
+            waiting = threading.Thread(target=wait_in_line)
+            waiting.start()
+            time.sleep(0.1)
+            from webapp.decoding import Busy
 
-            decoding.DecodePool.upload_slot = quick
-            try:
-                r = upload(app.test_client(), [("c/x.png", X)])
-            finally:
-                decoding.DecodePool.upload_slot = real
-        assert r.status_code == 503 and r.headers["Retry-After"] == "30"
-        assert "checking other uploads" in r.get_json()["error"]
+            t0 = time.monotonic()
+            with pytest.raises(Busy):
+                with pool.upload_slot(wait_s=5.0):
+                    pass
+            assert time.monotonic() - t0 < 1.0
+        waiting.join(5)
+        assert entered.is_set()
     finally:
         app.extensions["eightfold_worker"].stop()
 

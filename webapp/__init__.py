@@ -45,7 +45,8 @@ def create_app(test_config=None):
         BASE_URL=None,  # e.g. https://budgets.fernridge.example: links are built from it
         # Uploads: decoding runs in a bounded pool; these cap what one request and the server take on.
         DECODE_WORKERS=2,  # images decoded at once, server-wide (each may need ~200 MB for 50 Mpx)
-        UPLOAD_SLOTS=3,  # uploads checked at once; the next waits 5 s, then gets a 503 "busy"
+        UPLOAD_SLOTS=3,  # uploads checked at once; as many more wait up to UPLOAD_WAIT_S, the rest get a 503
+        UPLOAD_WAIT_S=30.0,
         DECODE_WAIT_S=60.0,  # longest wait for one decode or render before a 503
         MAX_JSON_DEPTH=32,  # deeper JSON bodies get a 400 (validation.check_json)
     )

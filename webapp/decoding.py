@@ -3,8 +3,8 @@
 A 160 KB PNG can decode to 50 Mpx (150 MB of pixels, more while converting); six of those decoded at
 once in request threads took a test server from 140 MB to 3.6 GB and stalled every page. Here every
 decode (upload checks, thumbnails, review renders) runs on one of ``DECODE_WORKERS`` threads, so
-memory is bounded by that many images, and at most ``UPLOAD_SLOTS`` uploads are checked at a time,
-so the server's other threads stay free for pages. Work that cannot start in time gets a 503 with
+memory is bounded by that many images, and at most ``UPLOAD_SLOTS`` uploads are checked at a time
+(as many again may wait for their turn), so the server's other threads stay free for pages. Work that cannot start in time gets a 503 with
 ``Retry-After`` instead of piling up. (Pillow and numpy release the GIL while they decode and
 convert, so threads keep both cores busy; a process pool would also copy each image back.)
 """
@@ -31,13 +31,15 @@ class Busy(ServiceUnavailable):
 
 
 class DecodePool:
-    def __init__(self, *, workers: int, upload_slots: int, wait_s: float):
+    def __init__(self, *, workers: int, upload_slots: int, wait_s: float, upload_wait_s: float = 30.0):
         if workers < 1 or upload_slots < 1:
             raise ValueError(f"DECODE_WORKERS and UPLOAD_SLOTS must be at least 1, got {workers!r}, {upload_slots!r}")
         self.workers = workers
         self.wait_s = float(wait_s)
         self._executor = cf.ThreadPoolExecutor(max_workers=workers, thread_name_prefix="eightfold-decode")
         self._uploads = threading.BoundedSemaphore(upload_slots)
+        self._waiting = threading.BoundedSemaphore(upload_slots)
+        self.upload_wait_s = float(upload_wait_s)
         self._running = 0
         self.peak = 0  # most decodes seen running at once (tests check the bound)
         self._lock = threading.Lock()
@@ -62,10 +64,22 @@ class DecodePool:
             raise Busy("the server is busy decoding other images; try again in a minute") from None
 
     @contextmanager
-    def upload_slot(self, wait_s: float = 5.0):
-        """One of the few uploads checked at a time; a 503 when all are taken for ``wait_s``."""
-        if not self._uploads.acquire(timeout=wait_s):
-            raise Busy("the server is checking other uploads right now; send this one again in a minute")
+    def upload_slot(self, wait_s: float | None = None):
+        """One of the few uploads checked at a time.
+
+        As many uploads again may wait for a slot (up to ``wait_s``, default ``UPLOAD_WAIT_S``); any
+        more get a 503 at once, so waiting uploads never hold more than that many server threads.
+        """
+        wait_s = self.upload_wait_s if wait_s is None else wait_s
+        if not self._uploads.acquire(blocking=False):
+            if not self._waiting.acquire(blocking=False):
+                raise Busy("the server is checking other uploads right now; send this one again in a minute")
+            try:
+                got = self._uploads.acquire(timeout=wait_s)
+            finally:
+                self._waiting.release()
+            if not got:
+                raise Busy("the server is checking other uploads right now; send this one again in a minute")
         try:
             yield
         finally:
@@ -86,4 +100,5 @@ def run(fn, *args):
 def init_app(app) -> None:
     app.extensions[EXTENSION] = DecodePool(workers=int(app.config["DECODE_WORKERS"]),
                                            upload_slots=int(app.config["UPLOAD_SLOTS"]),
-                                           wait_s=float(app.config["DECODE_WAIT_S"]))
+                                           wait_s=float(app.config["DECODE_WAIT_S"]),
+                                           upload_wait_s=float(app.config["UPLOAD_WAIT_S"]))

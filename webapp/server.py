@@ -56,7 +56,7 @@ def check_bind(host: str, *, no_login: bool) -> None:
     )
 
 
-def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: bool = False, threads: int = 8,
+def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: bool = False, threads: int = 12,
           no_login: bool = False) -> None:
     """Run the web app under waitress until interrupted.
 
