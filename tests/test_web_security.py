@@ -272,6 +272,7 @@ def test_cross_site_origin_is_refused(world):
 def test_unknown_host_is_refused_and_links_use_the_base_url(tmp_path):
     app = make_app(tmp_path, BASE_URL="https://budgets.fernridge.example", OWNER_PASSWORD=None)
     try:
+        assert app.config["SESSION_COOKIE_SECURE"] is True  # the cookie travels over HTTPS only
         client = app.test_client()
         r = client.get("/", headers={"Host": "attacker.example"})
         assert r.status_code == 400 and b"not served here" in r.data

@@ -256,7 +256,8 @@ def _cross_site_origin() -> bool:
     origin = request.headers.get("Origin")
     if not origin or origin == "null":
         return False
-    return origin.rstrip("/").lower() != f"{request.scheme}://{request.host}".lower()
+    # Host and port only: behind a TLS proxy the app sees http while the browser's Origin says https.
+    return urlsplit(origin).netloc.lower() != request.host.lower()
 
 
 def _is_json() -> bool:

@@ -74,6 +74,8 @@ def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: boo
 
     from waitress import serve as waitress_serve
 
+    from webapp.security import allowed_hosts, is_loopback
+
     check_bind(host, no_login=no_login)
     os.umask(0o077)  # everything this server writes is the owner's only
     config = {"BIND_HOST": host}
@@ -90,5 +92,8 @@ def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: boo
     else:
         print(f"Eightfold: serving on {base.rstrip('/')}/ ({login}; data in {app.config['DATA_DIR']})",
               file=sys.stderr)
+    if not is_loopback(host):
+        print(f"Eightfold: answering for the hosts {', '.join(sorted(allowed_hosts(app.config)))} "
+              "(add more with EIGHTFOLD_ALLOWED_HOSTS)", file=sys.stderr)
     waitress_serve(app, host=host, port=port, threads=max(4, int(threads)),
                    max_request_body_size=app.config["MAX_CONTENT_LENGTH"], **WAITRESS_LIMITS)
