@@ -7,7 +7,8 @@ import threading
 
 import pytest
 
-from tests.test_browser import GRID, browser, shot, write_shop  # noqa: F401 (browser is a fixture)
+from tests.test_browser import GRID, browser, shot, wait_true, write_shop  # noqa: F401 (browser is a fixture)
+from tests.test_web_server import run_until_closed
 
 pytestmark = pytest.mark.browser
 PORT = 8119  # loopback only
@@ -24,9 +25,11 @@ def guarded(tmp_path):
     app = create_app({"DATA_DIR": str(tmp_path / "data"), "SWEEP_WORKERS": 1, "SWEEP_GRID": GRID,
                       "OWNER_PASSWORD": PASSWORD})
     srv = create_server(app, host="127.0.0.1", port=PORT, threads=4, **WAITRESS_LIMITS)
-    thread = threading.Thread(target=srv.run, daemon=True)
+    stopping = threading.Event()
+    thread = threading.Thread(target=run_until_closed, args=(srv, stopping), daemon=True)
     thread.start()
     yield f"http://127.0.0.1:{PORT}"
+    stopping.set()
     srv.close()
     app.extensions["eightfold_worker"].stop()
     thread.join(5)
@@ -53,7 +56,7 @@ def test_login_upload_htmx_and_delete_under_the_csp(guarded, browser, tmp_path):
     page.wait_for_url(guarded + "/")
 
     page.set_input_files("#folder-input", str(write_shop(tmp_path)))
-    page.wait_for_function("document.getElementById('picked').textContent.includes('5 files')")
+    wait_true(page, "document.getElementById('picked').textContent.includes('5 files')")
     page.click("#upload-button")  # upload.js: fetch with the X-CSRFToken header
     page.wait_for_url("**/sets/*")
 

@@ -14,16 +14,31 @@ from webapp.server import WAITRESS_LIMITS
 PORT = 8118  # loopback only
 
 
+def run_until_closed(srv, stopping: threading.Event) -> None:
+    """srv.run(), where closing the server from the test thread ends the loop quietly.
+
+    Closing the sockets while the loop sits in select() makes select raise EBADF in the loop's thread.
+    """
+    try:
+        srv.run()
+    except OSError:
+        if not stopping.is_set():
+            raise
+
+
 @pytest.fixture
 def live(tmp_path):
     from waitress import create_server
 
     app = create_app({"DATA_DIR": str(tmp_path / "data"), "SWEEP_AUTORESUME": False})
     srv = create_server(app, host="127.0.0.1", port=PORT, threads=4, **WAITRESS_LIMITS)
-    thread = threading.Thread(target=srv.run, daemon=True)
+    stopping = threading.Event()
+    thread = threading.Thread(target=run_until_closed, args=(srv, stopping), daemon=True)
     thread.start()
     yield srv
+    stopping.set()
     srv.close()
+    thread.join(5)
     app.extensions["eightfold_worker"].stop()
 
 
