@@ -258,7 +258,9 @@ def _verify(doc, sample, runner, cache, quiet):
 
 
 def _server_options(command):
-    """--host, --port and --data-dir, shared by serve and demo."""
+    """--host, --port, --data-dir and --no-login, shared by serve and demo."""
+    command = click.option("--no-login", is_flag=True,
+                           help="Serve a non-loopback --host without a password (a trusted network only).")(command)
     command = click.option("--data-dir", type=click.Path(file_okay=False, path_type=Path),
                            help="Database and stored images [default: the instance folder].")(command)
     command = click.option("--port", default=8000, show_default=True, type=click.IntRange(1, 65535))(command)
@@ -267,20 +269,23 @@ def _server_options(command):
 
 @main.command()
 @_server_options
-def serve(host, port, data_dir):
-    """Start the web app on a production WSGI server (waitress)."""
+def serve(host, port, data_dir, no_login):
+    """Start the web app on a production WSGI server (waitress).
+
+    With EIGHTFOLD_PASSWORD (or EIGHTFOLD_PASSWORD_FILE) set, the owner's pages need a login.
+    """
     from webapp.server import serve as run
 
-    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=False)
+    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=False, no_login=no_login)
 
 
 @main.command()
 @_server_options
-def demo(host, port, data_dir):
+def demo(host, port, data_dir, no_login):
     """Start the web app with the demo sample set loaded and its sweep running."""
     from webapp.server import serve as run
 
-    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=True)
+    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=True, no_login=no_login)
 
 
 if __name__ == "__main__":  # pragma: no cover

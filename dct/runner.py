@@ -93,9 +93,39 @@ _OPENBLAS_SETTERS = (
 )
 
 
+_PR_SET_PDEATHSIG = 1  # <linux/prctl.h>
+
+
+def _exit_with_parent() -> None:
+    """End this worker when the process that started the pool dies, ``kill -9`` included.
+
+    A pool worker otherwise finishes its current image and waits on a queue nobody feeds, for
+    a minute or more. Two guards: a thread waiting on ``multiprocessing``'s parent sentinel (a
+    pipe end that reads EOF once the parent is gone, for forkserver and spawn alike), and on
+    Linux ``PR_SET_PDEATHSIG``, which signals the worker when its direct parent exits.
+    """
+    try:
+        libc = ctypes.CDLL("libc.so.6", use_errno=True)
+        libc.prctl(_PR_SET_PDEATHSIG, 9, 0, 0, 0)  # SIGKILL
+    except (OSError, AttributeError):
+        pass  # not Linux/glibc: the sentinel thread below still works
+    parent = multiprocessing.parent_process()
+    if parent is None or parent.sentinel is None:
+        return
+
+    def watch() -> None:
+        from multiprocessing.connection import wait
+
+        wait([parent.sentinel])
+        os._exit(1)
+
+    threading.Thread(target=watch, name="eightfold-parent-watch", daemon=True).start()
+
+
 def _init_pool_worker() -> None:
-    """Pool-worker initializer: the allocator fix (in case the environment carries dask's
-    setting), and one BLAS/OpenMP thread unless the user chose otherwise."""
+    """Pool-worker initializer: exit with the parent, the allocator fix (in case the environment
+    carries dask's setting), and one BLAS/OpenMP thread unless the user chose otherwise."""
+    _exit_with_parent()
     _tune_worker_malloc()
     chosen = "OPENBLAS_NUM_THREADS" in os.environ
     for name in _THREAD_ENV:

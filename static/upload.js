@@ -77,7 +77,9 @@
     document.getElementById("upload-button").disabled = true;
     status.textContent = "Uploading and checking " + chosen.length + " files…";
     try {
-      const resp = await fetch(form.action, { method: "POST", body: data });
+      const token = form.querySelector('input[name="csrf_token"]');
+      const resp = await fetch(form.action, { method: "POST", body: data,
+                                              headers: token ? { "X-CSRFToken": token.value } : {} });
       if (resp.redirected) { window.location.assign(resp.url); return; }
       document.open(); document.write(await resp.text()); document.close();
     } catch (err) {

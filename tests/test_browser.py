@@ -72,6 +72,18 @@ def write_shop(root: Path) -> Path:
     return shop
 
 
+def wait_true(page, expression: str, timeout: float = 30.0) -> None:
+    """Poll a JS expression until it is truthy. Playwright's wait_for_function evaluates its string
+    inside the page, which the app's CSP (no 'unsafe-eval') refuses; page.evaluate goes through the
+    DevTools protocol instead, so the page's own policy stays as strict as for a real visitor."""
+    import time
+
+    deadline = time.monotonic() + timeout
+    while not page.evaluate(expression):
+        assert time.monotonic() < deadline, f"still false after {timeout} s: {expression}"
+        time.sleep(0.05)
+
+
 def shot(page, name):
     SHOTS.mkdir(parents=True, exist_ok=True)
     page.screenshot(path=str(SHOTS / f"{name}.png"), full_page=True)
@@ -85,7 +97,7 @@ def test_upload_sweep_tune_freeze_share_signoff(server, browser, tmp_path):
 
     page.goto(server + "/")
     page.set_input_files("#folder-input", str(write_shop(tmp_path)))
-    page.wait_for_function("document.getElementById('picked').textContent.includes('5 files')")
+    wait_true(page, "document.getElementById('picked').textContent.includes('5 files')")
     assert "in 2 classes: product, hero" in page.text_content("#picked")  # the shared top folder is dropped
     shot(page, "01-upload")
     page.click("#upload-button")
@@ -109,7 +121,7 @@ def test_upload_sweep_tune_freeze_share_signoff(server, browser, tmp_path):
         target.fill("0.985")
         target.press("Tab")
     assert resp.value.status == 200
-    page.wait_for_function(
+    wait_true(page, 
         "document.querySelector('#results-table input[name=target_ssim][aria-label=\"target SSIM for product\"]')"
         ".getAttribute('value') === '0.985'")
     sweep_id = page.url.rsplit("/", 1)[1].split("?")[0]
@@ -128,7 +140,7 @@ def test_upload_sweep_tune_freeze_share_signoff(server, browser, tmp_path):
     shot(page, "05-results-tuned")
     page.locator("tr.expand:not([hidden]) a", has_text="Review").first.click()
     page.wait_for_selector("#viewer")
-    page.wait_for_function("Array.from(document.images).every(i => i.complete && (i.hidden || i.naturalWidth > 0))")
+    wait_true(page, "Array.from(document.images).every(i => i.complete && (i.hidden || i.naturalWidth > 0))")
     shot(page, "06-review")
     page.keyboard.press("z")
     page.keyboard.press("h")
@@ -139,7 +151,7 @@ def test_upload_sweep_tune_freeze_share_signoff(server, browser, tmp_path):
     page.keyboard.press("s")
     assert page.locator("#viewer .spot-mark.active").count() == 2  # the spot is marked in both panes
     page.evaluate("document.querySelectorAll('#viewer .frame')[0].scrollLeft = 50")
-    page.wait_for_function("(() => { const f = document.querySelectorAll('#viewer .frame');"
+    wait_true(page, "(() => { const f = document.querySelectorAll('#viewer .frame');"
                            " return f[0].scrollLeft > 0 && f[1].scrollLeft === f[0].scrollLeft; })()")
     page.keyboard.press("0")
     assert page.get_attribute("#viewer", "data-zoom") == "fit"

@@ -330,3 +330,39 @@ def test_make_runner_rejects_workers_with_scheduler():
 def test_pool_refuses_fork():
     with pytest.raises(ValueError, match="'fork'"):
         LocalPoolRunner(workers=2, start_method="fork")
+
+
+def test_pool_workers_exit_when_the_parent_is_killed(tmp_path):
+    # kill -9 gives the parent no chance to shut its pool down; the workers' own guards must end them
+    # (measured before the guards: workers lived on for 60-90 s, until their current item finished).
+    import psutil
+
+    script = tmp_path / "main_killed.py"
+    script.write_text(
+        "import sys, threading, time\n"
+        "from dct.runner import LocalPoolRunner\n"
+        "from tests import _runner_tasks as tasks\n"
+        "if __name__ == '__main__':\n"
+        "    pool = LocalPoolRunner(workers=2)\n"
+        "    threading.Thread(target=lambda: list(pool.map_unordered(tasks.pid_after, [120, 120])), daemon=True).start()\n"
+        "    time.sleep(300)\n"
+    )
+    env = {**os.environ, "PYTHONPATH": os.path.dirname(os.path.dirname(os.path.abspath(__file__)))}
+    proc = subprocess.Popen([sys.executable, str(script)], env=env)
+    try:
+        parent = psutil.Process(proc.pid)
+        deadline = time.monotonic() + 60
+        workers = []
+        while time.monotonic() < deadline:
+            workers = [p for p in parent.children(recursive=True) if p.is_running()]
+            if len(workers) >= 3:  # the forkserver and its two workers
+                break
+            time.sleep(0.2)
+        assert len(workers) >= 3, f"pool never started: {workers}"
+        proc.kill()
+        proc.wait(timeout=10)
+        gone, alive = psutil.wait_procs(workers, timeout=10)
+        assert not alive, f"still running 10 s after kill -9 of the parent: {[p.pid for p in alive]}"
+    finally:
+        if proc.poll() is None:
+            proc.kill()

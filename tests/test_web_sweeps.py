@@ -417,7 +417,10 @@ def test_serve_demo_prints_the_live_page_and_starts_waitress(tmp_path, monkeypat
     monkeypatch.setattr(waitress, "serve", lambda app, **kw: calls.append((app, kw)))
     server.serve(port=8123, data_dir=tmp_path / "data", demo=True)
     (app, kw), = calls
-    assert kw == {"host": "127.0.0.1", "port": 8123, "threads": 6}
+    from webapp.server import WAITRESS_LIMITS
+
+    assert kw == {"host": "127.0.0.1", "port": 8123, "threads": 12,
+                  "max_request_body_size": app.config["MAX_CONTENT_LENGTH"], **WAITRESS_LIMITS}
     err = capsys.readouterr().err
     sweep_id = err.split("/sweeps/")[1].split()[0]
     assert f"http://localhost:8123/sweeps/{sweep_id}" in err

@@ -37,20 +37,36 @@ def create_app(test_config=None):
         SWEEP_WORKERS=None,  # None lets dct.runner pick (CPU count or EIGHTFOLD_* environment)
         SWEEP_GRID=None,  # optional coarse grid override handed to the pipeline, if it takes one
         SWEEP_AUTORESUME=True,
+        # Owner login, hosts and links (webapp.security); the environment fills these for `eightfold serve`.
+        OWNER_PASSWORD=None,  # plain password or werkzeug hash; only the hash is kept (OWNER_PASSWORD_HASH)
+        OWNER_PASSWORD_FILE=None,
+        ALLOWED_HOSTS=None,  # extra Host names beside loopback and the bind address; "*" turns the check off
+        BIND_HOST=None,
+        BASE_URL=None,  # e.g. https://budgets.fernridge.example: links are built from it
+        # Uploads: decoding runs in a bounded pool; these cap what one request and the server take on.
+        DECODE_WORKERS=2,  # images decoded at once, server-wide (each may need ~200 MB for 50 Mpx)
+        UPLOAD_SLOTS=3,  # uploads checked at once; as many more wait up to UPLOAD_WAIT_S, the rest get a 503
+        UPLOAD_WAIT_S=30.0,
+        DECODE_WAIT_S=60.0,  # longest wait for one decode or render before a 503
+        MAX_JSON_DEPTH=32,  # deeper JSON bodies get a 400 (validation.check_json)
     )
     if test_config is not None:
         app.config.from_mapping(test_config)
 
     data_dir = Path(app.config["DATA_DIR"])
-    data_dir.mkdir(parents=True, exist_ok=True)
+    data_dir.mkdir(mode=0o700, parents=True, exist_ok=True)
+    data_dir.chmod(0o700)  # originals may carry GPS: the data dir is the owner's only, as are its files
     app.config["DATA_DIR"] = str(data_dir)
     app.config.setdefault("DATABASE", str(data_dir / "eightfold.sqlite3"))
     if not app.config.get("SECRET_KEY"):
         app.config["SECRET_KEY"] = _secret_key(data_dir)
 
-    from webapp import store
+    from webapp import decoding, security, store, uploads
 
     store.init_app(app)
+    security.init_app(app)  # first before_request hook: hosts, login and CSRF come before any view
+    decoding.init_app(app)
+    uploads.init_app(app)
 
     from webapp import api, budgets, review, samplesets, sweeps, views
 

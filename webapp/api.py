@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from flask import Blueprint, current_app, jsonify, request, url_for
 
-from webapp import budgets, ingest, store, validation
-from webapp.samplesets import uploaded_files
+from webapp import budgets, snapshots, store, validation
+from webapp.samplesets import ingest_upload, receive_upload
 from webapp.sweeps import redecide
 from webapp.views import json_error
 from webapp.worker import get_worker
@@ -14,12 +14,7 @@ bp = Blueprint("api", __name__, url_prefix="/api")
 
 
 def json_body():
-    if not request.data:
-        return {}
-    data = request.get_json(silent=True)
-    if data is None:
-        raise ValueError("request body must be JSON (Content-Type: application/json)")
-    return data
+    return validation.json_payload(request.get_data(cache=True), max_depth=current_app.config["MAX_JSON_DEPTH"])
 
 
 def sweep_json(sweep: dict) -> dict:
@@ -32,13 +27,11 @@ def sweep_json(sweep: dict) -> dict:
 
 @bp.post("/sample-sets")
 def create_set():
-    files = uploaded_files()
+    files, too_many = receive_upload()
     if not files:
         return json_error("no files: send images as multipart form data in the 'files' field", 400)
     db = store.get_db()
-    set_id, images, rejected, _ = ingest.ingest(
-        db, store.data_dir(), files, max_files=current_app.config["MAX_FILES_PER_SET"]
-    )
+    set_id, images, rejected, _ = ingest_upload(db, files, too_many)
     if not images:
         store.delete_set(db, store.data_dir(), set_id)
         return json_error(f"none of the {len(files)} files could be read as an image", 422, rejected=rejected)
@@ -160,6 +153,12 @@ def get_budget(token):
     if found is None:
         return json_error("no budget behind this token", 404)
     role, snapshot, budget = found
+    key = budgets.page_key(db, "json", token, role, snapshot, budget)
+    data = snapshots.page(key, lambda: _budget_json(db, role, snapshot, budget), csrf_token="\x00unused\x00")
+    return current_app.response_class(data, mimetype="application/json")
+
+
+def _budget_json(db, role, snapshot, budget) -> str:
     body = dict(snapshot["document"])
     body["signoffs"] = store.signoffs_for(db, snapshot["view_token"])
     body["budget"] = {"snapshot": snapshot["seq"], "frozen": snapshot["created"], "access": role}
@@ -168,7 +167,7 @@ def get_budget(token):
             {"snapshot": s["seq"], "token": s["view_token"], "frozen": s["created"]}
             for s in store.list_snapshots(db, budget["edit_token"])
         ]
-    return jsonify(body)
+    return jsonify(body).get_data(as_text=True)
 
 
 @bp.post("/budgets/<token>/signoffs")

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from flask import Blueprint, abort, redirect, render_template, request, url_for
 
-from webapp import results, store, validation
+from webapp import results, snapshots, store, validation
 from webapp.sweeps import document_download, load_sweep, redecide
 from webapp.views import is_htmx
 
@@ -72,18 +72,31 @@ def worst_images(document: dict, entry: dict, count: int = 3):
 
 
 def page_context(db, role, snapshot, budget, *, error=None, error_class=None, form=None):
-    document = snapshot["document"]
-    trail = store.signoffs_for(db, snapshot["view_token"])
-    sweep = store.get_sweep(db, budget["sweep_id"])
-    curves = (sweep or {}).get("curves")
+    document, view = snapshot["document"], snapshot["view_token"]
+    trail = store.signoffs_for(db, view)
+    curves = []  # the sweep's stored curves, parsed only when a snapshot's reasons are not cached yet
+
+    def why_of(entry):
+        def make():
+            if not curves:
+                curves.append((store.get_sweep(db, budget["sweep_id"]) or {}).get("curves"))
+            return results.rejections(curves[0], snapshot["params"], entry)
+
+        return snapshots.derived(view, "why", snapshots.entry_key(entry), make)
+
+    def chart(entry, **size):
+        return snapshots.derived(view, "chart", (snapshots.entry_key(entry), tuple(sorted(size.items()))),
+                                 lambda: results.chart(entry, **size))
+
     ctx = {
         "role": role, "snapshot": snapshot, "budget": budget, "doc": document, "params": snapshot["params"],
-        "classes": class_names(document), "trail": trail, "verdicts": verdicts(trail),
-        "totals": results.totals(document), "chart": results.chart, "error": error,
-        "error_class": error_class, "form": form or {}, "token": request.view_args["token"],
-        "worst_of": lambda entry: worst_images(document, entry),
-        "saved_bytes": results.saved_bytes, "failures": results.image_failures,
-        "why_of": lambda entry: results.rejections(curves, snapshot["params"], entry),
+        "classes": snapshots.derived(view, "classes", None, lambda: class_names(document)),
+        "trail": trail, "verdicts": verdicts(trail),
+        "totals": snapshots.derived(view, "totals", None, lambda: results.totals(document)), "chart": chart,
+        "error": error, "error_class": error_class, "form": form or {}, "token": request.view_args["token"],
+        "worst_of": lambda entry: snapshots.derived(view, "worst", snapshots.entry_key(entry),
+                                                    lambda: worst_images(document, entry)),
+        "saved_bytes": results.saved_bytes, "failures": results.image_failures, "why_of": why_of,
     }
     if role == "edit":
         ctx["snapshots"] = store.list_snapshots(db, budget["edit_token"])
@@ -101,10 +114,24 @@ def freeze_page(sweep_id):
     return redirect(url_for("budgets.show", token=edit_token), code=303)
 
 
+def page_key(db, kind, token, role, snapshot, budget):
+    """What a budget link's response depends on (see ``webapp.snapshots.page``)."""
+    from webapp.security import login_enabled, session_ok
+
+    return (kind, token, snapshot["view_token"], request.host_url, login_enabled() and session_ok(),
+            store.budget_version(db, role, snapshot["view_token"], budget["edit_token"]))
+
+
 @bp.get("/budgets/<token>")
 def show(token):
+    from flask import session
+    from flask_wtf.csrf import generate_csrf
+
     db, role, snapshot, budget = resolve(token)
-    return render_template("budget.html", **page_context(db, role, snapshot, budget))
+    render = lambda: render_template("budget.html", **page_context(db, role, snapshot, budget))  # noqa: E731
+    if session.get("_flashes"):
+        return render()  # a pending message is shown (and used up) once: not a page to keep
+    return snapshots.page(page_key(db, "page", token, role, snapshot, budget), render, generate_csrf())
 
 
 @bp.post("/budgets/<token>/signoffs")

@@ -12,7 +12,7 @@ from urllib.parse import quote
 from flask import Blueprint, abort, render_template, url_for
 from markupsafe import Markup
 
-from webapp import imaging, results, store
+from webapp import decoding, imaging, results, store
 
 log = logging.getLogger(__name__)
 bp = Blueprint("review", __name__)
@@ -76,15 +76,16 @@ def _page(db, document, set_id, n, url, back_url, back_label):
     image, row, entry, setting, fallback = _image(db, document, set_id, n)
     root = store.data_dir()
     width = image.get("width")
-    shape = imaging.pixels(root, row["sha256"], width).shape
-    crops = imaging.worst_crops(root, row["sha256"], width, setting, size=crop_size(shape))
+    # decoding and rendering run in the bounded pool (webapp.decoding), not on this request thread
+    shape = decoding.run(lambda: imaging.pixels(root, row["sha256"], width).shape)
+    crops = decoding.run(lambda: imaging.worst_crops(root, row["sha256"], width, setting, size=crop_size(shape)))
     count = len(document.get("images", []))
     fails = results.image_failures(entry, image) if entry else []
     low = imaging.heat_low((entry or {}).get("target_ssim"))
     failed = {key: any(f.startswith(word) for f in fails)
               for key, word in (("ssim", "SSIM"), ("chroma", "chroma"), ("local", "local"))}
     try:  # the file shown in the candidate pane (cached on disk; the pane requests the same bytes)
-        real_bytes = len(imaging.candidate_jpeg(root, row["sha256"], width, setting))
+        real_bytes = len(decoding.run(imaging.candidate_jpeg, root, row["sha256"], width, setting))
     except Exception:
         log.exception("candidate JPEG for %r failed", image.get("path"))
         real_bytes = None
@@ -101,11 +102,11 @@ def _asset(db, document, set_id, n, kind):
     image, row, entry, setting, _ = _image(db, document, set_id, n)
     root, width, sha = store.data_dir(), image.get("width"), row["sha256"]
     if kind == "original.png":
-        return imaging.png_response(imaging.original_png(root, sha, width))
+        return imaging.png_response(decoding.run(imaging.original_png, root, sha, width))
     if kind == "candidate.jpg":
-        return imaging.jpeg_response(imaging.candidate_jpeg(root, sha, width, setting))
+        return imaging.jpeg_response(decoding.run(imaging.candidate_jpeg, root, sha, width, setting))
     low = imaging.heat_low((entry or {}).get("target_ssim"))
-    return imaging.png_response(imaging.heatmap_png(root, sha, width, setting, low=low))
+    return imaging.png_response(decoding.run(lambda: imaging.heatmap_png(root, sha, width, setting, low=low)))
 
 
 ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png'):kind>"

@@ -6,15 +6,28 @@ from collections import Counter
 
 from flask import Blueprint, abort, current_app, flash, redirect, render_template, request, url_for
 
-from webapp import imaging, ingest, store, validation
+from webapp import decoding, imaging, ingest, store, uploads, validation
 from webapp.views import is_htmx
 from webapp.worker import get_worker
 
 bp = Blueprint("samplesets", __name__)
 
 
-def uploaded_files():
-    return [(f.filename, f.read()) for f in request.files.getlist("files") if f and (f.filename or "").strip()]
+def receive_upload():
+    """The request's file parts, streamed to disk (``webapp.uploads``), and the count dropped over the limit.
+
+    A part with neither a name nor bytes is an unused file picker of a plain form post, not a file.
+    """
+    got = uploads.receive(store.data_dir(), max_files=current_app.config["MAX_FILES_PER_SET"])
+    return [p for p in got.parts if p.filename.strip() or p.size], got.too_many
+
+
+def ingest_upload(db, parts, too_many):
+    """Check and store the parts as a set, a few uploads at a time, decoding in the bounded pool."""
+    pool = decoding.get_pool()
+    with pool.upload_slot():
+        return ingest.ingest(db, store.data_dir(), parts, max_files=current_app.config["MAX_FILES_PER_SET"],
+                             decode=pool.run, too_many=too_many)
 
 
 def listed_sets(db) -> list[dict]:
@@ -34,14 +47,12 @@ def home():
 
 @bp.post("/sets")
 def upload():
-    files = uploaded_files()
+    files, too_many = receive_upload()
     db = store.get_db()
     if not files:
         return render_template("home.html", sets=listed_sets(db),
                                error="No files arrived: choose images or a folder first."), 400
-    set_id, images, rejected, _ = ingest.ingest(
-        db, store.data_dir(), files, max_files=current_app.config["MAX_FILES_PER_SET"]
-    )
+    set_id, images, rejected, _ = ingest_upload(db, files, too_many)
     if not images:
         store.delete_set(db, store.data_dir(), set_id)
         return render_template("home.html", sets=listed_sets(db), rejected=rejected,
@@ -195,4 +206,8 @@ def thumbnail(set_id, image_id):
     image = db.execute("SELECT * FROM images WHERE id = ? AND set_id = ?", (image_id, set_id)).fetchone()
     if image is None:
         abort(404, description=f"no image {image_id!r} in this set")
-    return imaging.png_response(imaging.thumbnail_png(store.data_dir(), image["sha256"]))
+    try:
+        data = decoding.run(imaging.thumbnail_png, store.data_dir(), image["sha256"])
+    except FileNotFoundError:
+        abort(410, description="this image's stored file is gone (its sample set is being deleted)")
+    return imaging.png_response(data)

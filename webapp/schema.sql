@@ -1,5 +1,5 @@
--- Eightfold store, schema version 1 (PRAGMA user_version). Created on first use; no migrations yet:
--- a future version bumps user_version and adds its own statements.
+-- Eightfold store, schema version 2 (PRAGMA user_version). Created on first use; store.ensure_schema
+-- runs this file (every statement is IF NOT EXISTS) and then the step from each older version.
 
 CREATE TABLE IF NOT EXISTS sample_sets (
     id          TEXT PRIMARY KEY,           -- random, unguessable
@@ -51,8 +51,19 @@ CREATE INDEX IF NOT EXISTS sweeps_set ON sweeps (set_id);
 CREATE TABLE IF NOT EXISTS result_cache (
     fingerprint TEXT PRIMARY KEY,
     result      TEXT NOT NULL,
-    created     TEXT NOT NULL
+    created     TEXT NOT NULL,
+    set_id      TEXT                        -- the set whose sweep wrote it; deleted with that set (v2)
 );
+
+-- Uploads in flight that use a blob before their image rows exist (v2). With images.sha256 these
+-- rows count a blob's users; store.delete_set removes a blob only when it has none.
+CREATE TABLE IF NOT EXISTS blob_claims (
+    claim       TEXT NOT NULL,
+    sha256      TEXT NOT NULL,
+    created     REAL NOT NULL               -- epoch seconds; day-old claims (a crash) are dropped
+);
+CREATE INDEX IF NOT EXISTS blob_claims_sha256 ON blob_claims (sha256);
+CREATE INDEX IF NOT EXISTS blob_claims_claim ON blob_claims (claim);
 
 -- A budget: one owner (edit token) and its frozen snapshots (one view token each).
 CREATE TABLE IF NOT EXISTS budgets (

@@ -37,7 +37,27 @@ def load_demo(app, folder=None) -> str:
     return sweep_id
 
 
-def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: bool = False, threads: int = 6) -> None:
+# Waitress limits (https://docs.pylonsproject.org/projects/waitress/en/stable/arguments.html). Its
+# defaults let 100 half-sent connections hold every slot for the 120 s channel timeout; here a slot
+# is freed after 20 s of silence (checked every 5 s), and 250 slots leave room for a team's readers.
+WAITRESS_LIMITS = {"connection_limit": 250, "channel_timeout": 20, "cleanup_interval": 5, "backlog": 512}
+
+
+def check_bind(host: str, *, no_login: bool) -> None:
+    """Refuse to serve other machines without a password, unless the owner says so (``--no-login``)."""
+    from webapp.security import is_loopback, read_password
+
+    if is_loopback(host) or no_login or read_password({}):
+        return
+    raise SystemExit(
+        f"refusing to serve on {host} without a password: anyone who can reach this port could delete "
+        "sample sets and freeze budgets. Set EIGHTFOLD_PASSWORD (or EIGHTFOLD_PASSWORD_FILE), or pass "
+        "--no-login if the network itself is trusted."
+    )
+
+
+def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: bool = False, threads: int = 12,
+          no_login: bool = False) -> None:
     """Run the web app under waitress until interrupted.
 
     Parameters
@@ -47,15 +67,33 @@ def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: boo
         Where the SQLite file and stored images live; default: ``EIGHTFOLD_DATA_DIR`` or the instance folder.
     demo : bool
         Load ``demo_images/`` as a sample set, start its sweep and print the page that fills in live.
+    no_login : bool
+        Allow a non-loopback ``host`` without a password (see :func:`check_bind`).
     """
+    import os
+
     from waitress import serve as waitress_serve
 
-    config = {"DATA_DIR": str(data_dir)} if data_dir is not None else None
+    from webapp.security import allowed_hosts, is_loopback
+
+    check_bind(host, no_login=no_login)
+    os.umask(0o077)  # everything this server writes is the owner's only
+    config = {"BIND_HOST": host}
+    if data_dir is not None:
+        config["DATA_DIR"] = str(data_dir)
     app = create_app(config)
-    base = f"http://{'localhost' if host in ('127.0.0.1', '0.0.0.0', '::') else host}:{port}"
+    base = app.config.get("BASE_URL") or \
+        f"http://{'localhost' if host in ('127.0.0.1', '0.0.0.0', '::') else host}:{port}"
+    login = "owner login on" if app.config.get("OWNER_PASSWORD_HASH") else "no login"
     if demo:
         sweep_id = load_demo(app)
-        print(f"Eightfold demo: open {base}/sweeps/{sweep_id} to watch the sweep fill in", file=sys.stderr)
+        print(f"Eightfold demo: open {base.rstrip('/')}/sweeps/{sweep_id} to watch the sweep fill in ({login})",
+              file=sys.stderr)
     else:
-        print(f"Eightfold: serving on {base}/ (data in {app.config['DATA_DIR']})", file=sys.stderr)
-    waitress_serve(app, host=host, port=port, threads=max(4, int(threads)))
+        print(f"Eightfold: serving on {base.rstrip('/')}/ ({login}; data in {app.config['DATA_DIR']})",
+              file=sys.stderr)
+    if not is_loopback(host):
+        print(f"Eightfold: answering for the hosts {', '.join(sorted(allowed_hosts(app.config)))} "
+              "(add more with EIGHTFOLD_ALLOWED_HOSTS)", file=sys.stderr)
+    waitress_serve(app, host=host, port=port, threads=max(4, int(threads)),
+                   max_request_body_size=app.config["MAX_CONTENT_LENGTH"], **WAITRESS_LIMITS)

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
 import secrets
 import sqlite3
 import threading
@@ -23,7 +24,7 @@ from pathlib import Path
 
 from flask import current_app, g
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 SCHEMA_FILE = Path(__file__).with_name("schema.sql")
 STATUSES = ("queued", "running", "done", "failed", "cancelled")
 VERDICTS = ("approve", "needs work")
@@ -63,6 +64,10 @@ def ensure_schema(conn: sqlite3.Connection) -> None:
         )
     if version < SCHEMA_VERSION:
         conn.executescript(SCHEMA_FILE.read_text(encoding="utf-8"))
+        # v1 -> v2: result rows learn which set wrote them (CREATE IF NOT EXISTS kept a v1 table as it was)
+        if "set_id" not in {r[1] for r in conn.execute("PRAGMA table_info(result_cache)")}:
+            conn.execute("ALTER TABLE result_cache ADD COLUMN set_id TEXT")
+        conn.execute("CREATE INDEX IF NOT EXISTS result_cache_set ON result_cache (set_id)")
         conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
         conn.commit()
 
@@ -83,8 +88,14 @@ def init_app(app) -> None:
     conn = connect(app.config["DATABASE"])
     try:
         ensure_schema(conn)
+        release_stale_claims(conn)
     finally:
         conn.close()
+    for suffix in ("", "-wal", "-shm"):  # SQLite gives its side files the main file's mode
+        try:
+            os.chmod(app.config["DATABASE"] + suffix, 0o600)
+        except FileNotFoundError:
+            pass
     app.teardown_appcontext(close_db)
 
 
@@ -103,15 +114,69 @@ def blob_path(root, sha: str) -> Path:
     return Path(root) / "blobs" / sha[:2] / f"{sha}.bin"
 
 
+def _private_dir(path: Path) -> None:
+    path.mkdir(mode=0o700, parents=True, exist_ok=True)
+
+
+def _write_private(path: Path, data: bytes) -> None:
+    """Write ``data`` under ``path`` atomically, readable by the owner only (originals may carry GPS)."""
+    _private_dir(path.parent)
+    tmp = path.with_name(path.name + f".tmp{secrets.token_hex(4)}")
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    with os.fdopen(fd, "wb") as f:
+        f.write(data)
+    tmp.replace(path)  # atomic: a crash never leaves a half-written file under its final name
+
+
 def put_blob(root, data: bytes) -> str:
+    """Store bytes as a blob (if not there yet). Callers that race a delete hold a claim first."""
     sha = hashlib.sha256(data).hexdigest()
     path = blob_path(root, sha)
     if not path.exists():
-        path.parent.mkdir(parents=True, exist_ok=True)
-        tmp = path.with_suffix(f".tmp{secrets.token_hex(4)}")
-        tmp.write_bytes(data)
-        tmp.replace(path)  # atomic: a crash never leaves a half-written blob under its final name
+        _write_private(path, data)
     return sha
+
+
+def spool_upload(root, stream, *, chunk: int = 1 << 20) -> tuple[Path, str, int]:
+    """Copy an upload stream to a private temporary file under ``root/tmp``, hashing as it goes.
+
+    Returns ``(path, sha256, size)``; the caller moves it into place with :func:`adopt_blob` or removes it.
+    Memory stays at one chunk whatever the file's size.
+    """
+    folder = Path(root) / "tmp"
+    _private_dir(folder)
+    path = folder / f"upload-{secrets.token_hex(8)}"
+    h, size = hashlib.sha256(), 0
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    try:
+        with os.fdopen(fd, "wb") as f:
+            while True:
+                block = stream.read(chunk)
+                if not block:
+                    break
+                h.update(block)
+                size += len(block)
+                f.write(block)
+    except BaseException:
+        path.unlink(missing_ok=True)
+        raise
+    return path, h.hexdigest(), size
+
+
+def adopt_blob(root, tmp: Path, sha: str) -> None:
+    """Move a spooled upload to its blob name, or drop it when that blob exists already.
+
+    A hard link never replaces an existing file, so a stored blob keeps its modification time
+    (the result cache keys on it) even when two uploads of the same bytes finish together.
+    """
+    path = blob_path(root, sha)
+    _private_dir(path.parent)
+    try:
+        os.link(tmp, path)
+    except FileExistsError:
+        pass
+    finally:
+        tmp.unlink(missing_ok=True)
 
 
 def render_path(root, sha: str, key: str) -> Path:
@@ -124,10 +189,7 @@ def cached_render(root, sha: str, key: str, make) -> bytes:
     if path.exists():
         return path.read_bytes()
     data = make()
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(path.name + f".tmp{secrets.token_hex(4)}")
-    tmp.write_bytes(data)
-    tmp.replace(path)
+    _write_private(path, data)
     return data
 
 
@@ -222,16 +284,57 @@ def update_image_classes(conn, set_id: str, classes: dict[int, str]) -> None:
         )
 
 
-def delete_set(conn, root, set_id: str) -> bool:
-    """Delete a set, its sweeps and budgets, and every blob no other set still uses."""
-    shas = {r[0] for r in conn.execute("SELECT sha256 FROM images WHERE set_id = ?", (set_id,))}
+def claim_blobs(conn, shas) -> str:
+    """Mark blobs as in use by an upload that has no image rows yet; returns the claim id.
+
+    Together with the ``images`` rows these ``blob_claims`` rows count who uses a blob, and
+    :func:`delete_set` removes a blob's files only when neither exists, inside its write transaction,
+    so a delete can never take a file that an upload in flight is about to use.
+    """
+    claim = secrets.token_hex(8)
     with conn:
+        conn.executemany("INSERT INTO blob_claims (claim, sha256, created) VALUES (?, ?, ?)",
+                         [(claim, sha, time.time()) for sha in set(shas)])
+    return claim
+
+
+def release_claim(conn, claim: str) -> None:
+    with conn:
+        conn.execute("DELETE FROM blob_claims WHERE claim = ?", (claim,))
+
+
+def release_stale_claims(conn, max_age_s: float = 24 * 3600) -> None:
+    """Claims left by a crash mid-upload; their blobs are kept until a later delete looks again."""
+    with conn:
+        conn.execute("DELETE FROM blob_claims WHERE created < ?", (time.time() - max_age_s,))
+
+
+def delete_set(conn, root, set_id: str) -> bool:
+    """Delete a set, its sweeps, budgets and cached results, and every blob nobody else uses.
+
+    Runs as one write transaction (``BEGIN IMMEDIATE``) that also unlinks the unused blobs' files,
+    so an upload's claim (a write) is either seen here or made after the files are gone.
+    """
+    conn.execute("BEGIN IMMEDIATE")
+    try:
+        shas = {r[0] for r in conn.execute("SELECT sha256 FROM images WHERE set_id = ?", (set_id,))}
         cur = conn.execute("DELETE FROM sample_sets WHERE id = ?", (set_id,))
-    if cur.rowcount == 0:
-        return False
-    for sha in shas:
-        if conn.execute("SELECT 1 FROM images WHERE sha256 = ? LIMIT 1", (sha,)).fetchone() is None:
-            _remove_blob_files(root, sha)
+        if cur.rowcount == 0:
+            conn.rollback()
+            return False
+        # Result rows carry the set's file names (the pipeline's keys); they go with the set.
+        conn.execute("DELETE FROM result_cache WHERE set_id = ?", (set_id,))
+        for sha in shas:
+            used = conn.execute(
+                "SELECT 1 FROM images WHERE sha256 = ? UNION ALL SELECT 1 FROM blob_claims WHERE sha256 = ? LIMIT 1",
+                (sha, sha),
+            ).fetchone()
+            if used is None:
+                _remove_blob_files(root, sha)
+        conn.commit()
+    except BaseException:
+        conn.rollback()
+        raise
     return True
 
 
@@ -335,9 +438,10 @@ class SqliteResultCache:
     Uses its own connection, guarded by a lock, so the pipeline may call it from any thread.
     """
 
-    def __init__(self, database):
+    def __init__(self, database, *, set_id: str | None = None):
         self._conn = connect(database, check_same_thread=False)
         self._lock = threading.Lock()
+        self._set_id = set_id  # rows remember the set whose sweep wrote them (file names inside)
 
     def get(self, fingerprint: str):
         with self._lock:
@@ -350,8 +454,8 @@ class SqliteResultCache:
         text = json.dumps(result)
         with self._lock, self._conn:
             self._conn.execute(
-                "INSERT OR REPLACE INTO result_cache (fingerprint, result, created) VALUES (?, ?, ?)",
-                (fingerprint, text, now_iso()),
+                "INSERT OR REPLACE INTO result_cache (fingerprint, result, created, set_id) VALUES (?, ?, ?, ?)",
+                (fingerprint, text, now_iso(), self._set_id),
             )
 
     def close(self) -> None:
@@ -385,9 +489,13 @@ def add_snapshot(conn, edit_token: str, params: dict, document: dict) -> str:
 
 
 def _snapshot_dict(row) -> dict:
+    """A snapshot row with its JSON parsed; parsed once per snapshot (frozen, so it never changes)."""
+    from webapp import snapshots
+
+    parsed = snapshots.derived(row["view_token"], "row", None,
+                               lambda: (json.loads(row["params"]), json.loads(row["document"])))
     d = dict(row)
-    d["params"] = json.loads(d["params"])
-    d["document"] = json.loads(d["document"])
+    d["params"], d["document"] = parsed
     return d
 
 
@@ -408,6 +516,17 @@ def resolve_token(conn, token: str):
         "SELECT * FROM snapshots WHERE edit_token = ? ORDER BY seq DESC LIMIT 1", (token,)
     ).fetchone()
     return "edit", _snapshot_dict(latest), dict(budget)
+
+
+def budget_version(conn, role: str, view_token: str, edit_token: str) -> tuple:
+    """Changes whenever what a budget link shows changes: sign-offs added, or (owner link) a re-freeze."""
+    if role == "view":
+        return tuple(conn.execute(
+            "SELECT COUNT(*), COALESCE(MAX(id), 0) FROM signoffs WHERE view_token = ?", (view_token,)).fetchone())
+    return tuple(conn.execute(
+        "SELECT (SELECT COUNT(*) FROM snapshots WHERE edit_token = ?), COUNT(*), COALESCE(MAX(s.id), 0)"
+        " FROM signoffs s JOIN snapshots p ON p.view_token = s.view_token WHERE p.edit_token = ?",
+        (edit_token, edit_token)).fetchone())
 
 
 def list_snapshots(conn, edit_token: str):

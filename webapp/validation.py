@@ -268,3 +268,32 @@ def class_specs(params: dict) -> dict:
 
 def current_setting(params: dict) -> Setting:
     return Setting.from_dict(params["current"])
+
+
+MAX_JSON_BYTES = 1_000_000  # a sweep request is a few KB; the whole upload cap is for images
+
+
+def json_payload(raw: bytes, *, max_depth: int = 32):
+    """A request body parsed as JSON: ``{}`` when empty; ``ValueError`` when too big, too deep or not JSON."""
+    import json
+
+    if not raw:
+        return {}
+    if len(raw) > MAX_JSON_BYTES:
+        raise ValueError(f"request body too large for JSON: {len(raw):,} bytes, at most {MAX_JSON_BYTES:,}")
+    try:
+        data = json.loads(raw)
+    except RecursionError:
+        raise ValueError(f"request body is nested too deeply (at most {max_depth} levels)") from None
+    except ValueError:  # UnicodeDecodeError and JSONDecodeError are both ValueErrors
+        raise ValueError("request body must be JSON (Content-Type: application/json)") from None
+    stack = [(data, 1)]
+    while stack:  # iterative: the depth check itself must not recurse
+        value, depth = stack.pop()
+        if depth > max_depth:
+            raise ValueError(f"request body is nested too deeply (at most {max_depth} levels)")
+        if isinstance(value, dict):
+            stack.extend((v, depth + 1) for v in value.values())
+        elif isinstance(value, list):
+            stack.extend((v, depth + 1) for v in value)
+    return data

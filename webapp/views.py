@@ -6,7 +6,7 @@ import json
 import logging
 
 from flask import jsonify, render_template, request
-from werkzeug.exceptions import HTTPException
+from werkzeug.exceptions import HTTPException, RequestEntityTooLarge
 
 log = logging.getLogger(__name__)
 HTMX_FILE = "htmx-2.0.11.min.js"
@@ -91,12 +91,15 @@ def init_app(app) -> None:
     @app.errorhandler(HTTPException)
     def http_error(exc: HTTPException):
         message = exc.description or exc.name
-        if exc.code == 413:
+        if exc.code == 413 and message == RequestEntityTooLarge.description:
             limit = app.config.get("MAX_CONTENT_LENGTH")
             message = f"upload too large: the limit is {limit // (1024 * 1024)} MB per request" if limit else message
         if wants_json():
-            return json_error(message, exc.code or 400)
-        return render_template("error.html", code=exc.code, title=exc.name, message=message), exc.code
+            resp, status = json_error(message, exc.code or 400)
+        else:
+            resp, status = render_template("error.html", code=exc.code, title=exc.name, message=message), exc.code
+        retry = getattr(exc, "retry_after", None)  # a busy server says when to come back (decoding.Busy)
+        return (resp, status, {"Retry-After": str(retry)}) if retry else (resp, status)
 
     @app.errorhandler(Exception)
     def unexpected(exc: Exception):

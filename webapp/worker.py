@@ -138,7 +138,7 @@ class SweepWorker:
         def on_reused(count: int) -> None:
             self._reused[sweep["id"]] = count
 
-        cache = store.SqliteResultCache(self.database)
+        cache = store.SqliteResultCache(self.database, set_id=sweep["set_id"])
         # EIGHTFOLD_SCHEDULER sends the work to a dask cluster, whose workers bring their own
         # processes and cannot read this machine's blob store: they get the images as bytes.
         scheduler = os.environ.get(SCHEDULER_ENV, "").strip() or None
