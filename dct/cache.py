@@ -15,7 +15,7 @@ import tempfile
 from pathlib import Path
 from typing import Protocol
 
-ENGINE_VERSION = "2"  # bump when the engine's numbers change, so old results are not reused
+ENGINE_VERSION = "3"  # bump when the engine's numbers change, so old results are not reused
 
 
 class ResultCache(Protocol):

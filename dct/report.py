@@ -4,12 +4,13 @@ Document keys (stable; scripts, the web API and exports depend on them)::
 
     schema_version, generator, created, current{quality,cutoff,subsampling}, grid{...},
     classes: [{name, width, image_count, target_ssim, coverage, chroma_floor, local_floor,
+               edge_floor, blocking_limit,
                setting{quality,cutoff,subsampling} | null, quant_tables{luma,chroma} | null,
                meets_target, coverage_met, share_meeting, estimated_bytes, mean_bytes, bpp,
                ssim_min, ssim_at_coverage, current_bytes, savings_vs_current, chosen_point,
                current_point, frontier[{quality,cutoff,subsampling,estimated_bytes,ssim,qualifies}], message}],
     images: [{path, class, width, pixel_width, pixel_height, setting, estimated_bytes, ssim,
-              ssim_cb, ssim_cr, ssim_local, meets}],
+              ssim_cb, ssim_cr, ssim_local, edge_ssim, blocking, damage_fails, meets}],
     rejected: [{path, error}]
 
 ``estimated_bytes`` of a class is the total over its images; ``ssim`` of a frontier point is the
@@ -56,6 +57,8 @@ def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
         "coverage": spec.coverage,
         "chroma_floor": chroma_floor,
         "local_floor": targets_local,
+        "edge_floor": targets.edge_floor,
+        "blocking_limit": targets.blocking_limit,
         "setting": decision.setting.as_dict() if decision.setting else None,
         "quant_tables": _tables(decision.setting) if decision.setting else None,
         "meets_target": s is not None,
@@ -78,7 +81,8 @@ def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
         closest = f"; closest: {best.setting.label()} with {best.share_accepting:.0%} of images" if best else ""
         entry["message"] = (
             f"no setting in the grid reaches SSIM {spec.target_ssim} (chroma floor {chroma_floor}, "
-            f"local floor {targets_local}) for {spec.coverage:.0%} of images{closest}"
+            f"local floor {targets_local}, edge floor {targets.edge_floor}, blocking limit "
+            f"{targets.blocking_limit}) for {spec.coverage:.0%} of images{closest}"
         )
     return entry
 
@@ -100,7 +104,8 @@ def build_document(*, decisions, results, rejected, current: Setting, grid: dict
             point = next((p for p in curve.points if p.setting == shown), None)
             if point is None:
                 continue
-            m = budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local)
+            m = budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
+                               point.edge_ssim, point.blocking)
             images.append(
                 {
                     "path": key,
@@ -114,6 +119,9 @@ def build_document(*, decisions, results, rejected, current: Setting, grid: dict
                     "ssim_cb": None if point.ssim_cb is None else round(point.ssim_cb, 6),
                     "ssim_cr": None if point.ssim_cr is None else round(point.ssim_cr, 6),
                     "ssim_local": round(point.ssim_local, 6),
+                    "edge_ssim": round(point.edge_ssim, 6),
+                    "blocking": round(point.blocking, 4),
+                    "damage_fails": budget.damage_failures(m, targets),
                     "meets": budget.accepts(m, targets),
                 }
             )

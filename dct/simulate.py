@@ -25,7 +25,7 @@ from typing import Iterable
 
 import numpy as np
 
-from . import color, entropy, quality
+from . import color, damage, entropy, quality
 from .tables import SAMPLING_FACTORS, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
 from .transform import BLOCK, forward_dct_plane, inverse_dct_blocks
 
@@ -120,6 +120,7 @@ def _reconstruct(coded: np.ndarray, table_zigzag: np.ndarray, rows: int, cols: i
 class _LumaResult:
     ssim: quality.SsimResult
     recon: np.ndarray | None
+    damage: damage.DamageResult = field(default_factory=lambda: damage.DamageResult(1.0, 0.0))
 
 
 @dataclass
@@ -142,6 +143,8 @@ class SweepPoint:
     ssim_cr: float | None
     ssim_local: float  # low percentile of 16x16-tile mean luma SSIM (quality.LOCAL_PERCENTILE)
     psnr: float  # luma, dB
+    edge_ssim: float = 1.0  # dct.damage: low percentile of luma SSIM next to strong edges
+    blocking: float = 0.0  # dct.damage: extra error step at block boundaries in smooth areas, levels
 
     def as_dict(self) -> dict:
         d = self.setting.as_dict() if self.setting is not None else {}
@@ -153,6 +156,8 @@ class SweepPoint:
             ssim_cr=self.ssim_cr,
             ssim_local=self.ssim_local,
             psnr=None if math.isinf(self.psnr) else self.psnr,
+            edge_ssim=self.edge_ssim,
+            blocking=self.blocking,
         )
         return d
 
@@ -167,6 +172,8 @@ class SweepPoint:
             ssim_cr=None if d.get("ssim_cr") is None else float(d["ssim_cr"]),
             ssim_local=float(d["ssim_local"]),
             psnr=math.inf if d.get("psnr") is None else float(d["psnr"]),
+            edge_ssim=float(d.get("edge_ssim", 1.0)),
+            blocking=float(d.get("blocking", 0.0)),
         )
 
 
@@ -201,6 +208,7 @@ class PreparedImage:
         self._chroma: dict[str, tuple[_Plane, _Plane]] = {}
         self._luma_ref: quality.ReferenceStats | None = None
         self._chroma_ref: tuple[quality.ReferenceStats, quality.ReferenceStats] | None = None
+        self._damage_ref: damage.EdgeReference | None = None
         self._luma_cache: dict[bytes, _LumaResult] = {}
         self._chroma_cache: dict[tuple[str, bytes], _ChromaResult] = {}
 
@@ -231,6 +239,11 @@ class PreparedImage:
             self._luma_ref = quality.ReferenceStats(self._planes[0])
         return self._luma_ref
 
+    def _damage_reference(self) -> damage.EdgeReference:
+        if self._damage_ref is None:
+            self._damage_ref = damage.EdgeReference(self._planes[0])
+        return self._damage_ref
+
     def _chroma_reference(self) -> tuple[quality.ReferenceStats, quality.ReferenceStats]:
         if self._chroma_ref is None:
             self._chroma_ref = (
@@ -253,8 +266,12 @@ class PreparedImage:
         cached = self._luma_cache.get(key)
         if cached is None or (want_arrays and cached.recon is None):
             recon = _reconstruct(coded, tz, plane.height, plane.width)
-            result = self._luma_reference().compare(recon, want_map=want_arrays)
-            cached = _LumaResult(ssim=result, recon=recon if want_arrays else None)
+            # The visible-damage statistics (dct.damage) read the luma planes and the SSIM map.
+            result = self._luma_reference().compare(recon, want_map=True)
+            seen = self._damage_reference().measure(recon, result.ssim_map)
+            if not want_arrays:
+                result.ssim_map = None
+            cached = _LumaResult(ssim=result, recon=recon if want_arrays else None, damage=seen)
             self._luma_cache[key] = cached
         return cached, stats
 
@@ -322,6 +339,8 @@ class PreparedImage:
             ssim_cr=None if chroma is None else chroma.ssim_cr.ssim,
             ssim_local=luma.ssim.local,
             psnr=luma.ssim.psnr,
+            edge_ssim=luma.damage.edge_ssim,
+            blocking=luma.damage.blocking,
         )
         if not want_arrays:
             return SweepPoint(**fields)
@@ -360,7 +379,8 @@ def simulate(
     -------
     Simulation
         ``estimated_bytes`` (int, whole file with optimal Huffman tables), ``standard_bytes``,
-        ``ssim`` (luma), ``ssim_cb``, ``ssim_cr``, ``ssim_local``, ``psnr``, ``ssim_map`` (H x W float32),
+        ``ssim`` (luma), ``ssim_cb``, ``ssim_cr``, ``ssim_local``, ``psnr``, ``edge_ssim`` and
+        ``blocking`` (:mod:`dct.damage`), ``ssim_map`` (H x W float32),
         ``reconstructed`` (uint8, the shape of ``rgb``) and ``tables``.
     """
     _check_pixels(rgb)
