@@ -125,6 +125,26 @@ def worst_crops(root, sha: str, width, setting: dict, *, count: int = 3, size: i
     return json.loads(store.cached_render(root, sha, key, make))
 
 
+def damage_spot(root, sha: str, width, setting: dict, check: str, *, size: int = 96) -> dict | None:
+    """Where a visible-damage check (``dct.damage``: "edge" or "blocking") is worst at ``setting``."""
+    from dct.color import rgb_to_ycbcr
+    from dct.damage import EdgeReference
+    from dct.simulate import simulate
+
+    def make():
+        px = pixels(root, sha, width)
+        sim = simulate(px, setting["quality"], setting["subsampling"], setting["cutoff"])
+        luma = (lambda a: a.astype(np.float32)) if px.ndim == 2 else (lambda a: rgb_to_ycbcr(a)[0])
+        spot = EdgeReference(luma(px)).worst_spot(luma(sim.reconstructed), sim.ssim_map, check, size=size)
+        if spot is None:
+            return b"null"
+        return json.dumps({"top": spot.top, "left": spot.left, "height": spot.height, "width": spot.width,
+                           "ssim": spot.value, "check": check}).encode()
+
+    key = f"{_width_key(width)}-{_setting_key(setting)}-damage-{check}{size}.json"
+    return json.loads(store.cached_render(root, sha, key, make))
+
+
 def png_response(data: bytes) -> Response:
     resp = Response(data, mimetype="image/png")
     resp.headers["Cache-Control"] = "private, max-age=3600"
