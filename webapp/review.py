@@ -61,12 +61,12 @@ def crop_size(shape) -> int:
     return int(min(96, max(16, min(shape[0], shape[1]) // 2)))
 
 
-def heat_legend(low: float):
+def heat_legend(low: float, high: float = 1.0):
     """The heat-map colour key (SVG markup), or None: a missing key must not take the page down."""
     try:
         from webapp.heatmap import ssim_legend_svg
 
-        return Markup(ssim_legend_svg(low, width=260))
+        return Markup(ssim_legend_svg(low, high=high, width=260))
     except Exception:
         log.exception("heat-map key failed")
         return None
@@ -83,7 +83,8 @@ def _page(db, document, set_id, n, url, back_url, back_label):
     siblings = [i for i, im in enumerate(images) if im["class"] == image["class"] and im.get("width") == width]
     pos = siblings.index(n)
     fails = results.image_failures(entry, image) if entry else []
-    low = imaging.heat_low((entry or {}).get("target_ssim"))
+    high, low = imaging.heat_scale(imaging.ssim_map(root, row["sha256"], width, setting),
+                                   (entry or {}).get("target_ssim"))
     failed = {key: any(f.startswith(word) for f in fails)
               for key, word in (("ssim", "SSIM"), ("chroma", "chroma"), ("local", "local"), ("edge", "edge"),
                                 ("blocking", "blocking"))}
@@ -107,7 +108,7 @@ def _page(db, document, set_id, n, url, back_url, back_label):
         "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=len(images),
         px_height=shape[0], px_width=shape[1], crops=damage_spots + crops, damage_spots=damage_spots,
         fails_text="; ".join(fails), failed=failed, pos=pos, count_in_class=len(siblings),
-        real_bytes=real_bytes, legend=heat_legend(low), heat_low=low, back_url=back_url, back_label=back_label,
+        real_bytes=real_bytes, legend=heat_legend(low, high), heat_low=low, heat_high=high, back_url=back_url, back_label=back_label,
         prev_url=url(siblings[pos - 1]) if pos > 0 else None,
         next_url=url(siblings[pos + 1]) if pos + 1 < len(siblings) else None,
         asset=lambda kind: url(n, kind),
@@ -121,8 +122,8 @@ def _asset(db, document, set_id, n, kind):
         return imaging.png_response(imaging.original_png(root, sha, width))
     if kind == "candidate.jpg":
         return imaging.jpeg_response(imaging.candidate_jpeg(root, sha, width, setting))
-    low = imaging.heat_low((entry or {}).get("target_ssim"))
-    return imaging.png_response(imaging.heatmap_png(root, sha, width, setting, low=low))
+    return imaging.png_response(imaging.heatmap_png(root, sha, width, setting,
+                                                    target_ssim=(entry or {}).get("target_ssim")))
 
 
 ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png'):kind>"
