@@ -194,8 +194,10 @@ def test_results_table_shows_saved_kb_and_glossary(swept):
     for e in doc["classes"]:
         if e["setting"]:
             saved = e["current_bytes"] - e["estimated_bytes"]
-            assert f"{views.kb_signed(saved)} KB · {views.pct(e['savings_vs_current'], 1)}" in html
-    assert "What the numbers mean" in html and "Local floor" in html and "Cutoff (k)" in html
+            assert views.saving(saved, e["savings_vs_current"]) in html
+            assert ("saves " if saved > 0 else "costs ") in views.saving(saved, e["savings_vs_current"])
+    assert "What the numbers mean" in html and "(local floor)" in html and "(cutoff, k)" in html
+    assert "Halos and blur at sharp edges" in html and "(edge SSIM)" in html
 
 
 # --- review page ---

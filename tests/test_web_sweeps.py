@@ -383,7 +383,7 @@ def test_demo_loader_is_idempotent(tmp_path):
     app.extensions["eightfold_worker"].stop()
 
 
-def test_totals_leave_out_classes_without_a_setting(swept):
+def test_totals_count_classes_without_a_setting_at_the_current_default(swept):
     from webapp.results import totals
 
     _, client, _, sweep_id, _ = swept
@@ -395,10 +395,12 @@ def test_totals_leave_out_classes_without_a_setting(swept):
         assert all(e["setting"] is None for e in product)
         t = totals(doc)
         assert t["undecided"] == ["product"]
-        assert t["chosen_bytes"] == sum(e["estimated_bytes"] for e in hero)
-        assert t["current_bytes"] == sum(e["current_bytes"] for e in hero)
+        # The undecided class keeps today's default: counted on both sides, it saves nothing, so the
+        # headline cannot look bigger than the set's real saving.
+        assert t["chosen_bytes"] == sum(e["estimated_bytes"] for e in hero) + sum(e["current_bytes"] for e in product)
+        assert t["current_bytes"] == sum(e["current_bytes"] for e in hero + product)
         page = client.get(f"/sweeps/{sweep_id}").get_data(as_text=True)
-        assert "No setting reaches the target for: product (left out of these totals)." in page
+        assert "No setting reaches the target for: product; counted at the current default, so it saves nothing." in page
     finally:
         client.post(f"/api/sweeps/{sweep_id}/decide", json={"classes": {"product": {"target_ssim": 0.95}}})
 
@@ -414,10 +416,21 @@ def test_serve_demo_prints_the_live_page_and_starts_waitress(tmp_path, monkeypat
         (folder / name).write_bytes(data)
     monkeypatch.setattr(server, "DEMO_DIR", folder)
     calls = []
-    monkeypatch.setattr(waitress, "serve", lambda app, **kw: calls.append((app, kw)))
+
+    class FakeServer:  # stands in for waitress's bound server: records, never listens
+        def __init__(self, app, **kw):
+            calls.append((app, kw))
+
+        def run(self):
+            calls.append("run")
+
+        def close(self):
+            calls.append("close")
+
+    monkeypatch.setattr(waitress, "create_server", FakeServer)
     server.serve(port=8123, data_dir=tmp_path / "data", demo=True)
-    (app, kw), = calls
-    assert kw == {"host": "127.0.0.1", "port": 8123, "threads": 6}
+    (app, kw), *rest = calls
+    assert kw == {"host": "127.0.0.1", "port": 8123, "threads": 6} and rest == ["run", "close"]
     err = capsys.readouterr().err
     sweep_id = err.split("/sweeps/")[1].split()[0]
     assert f"http://localhost:8123/sweeps/{sweep_id}" in err

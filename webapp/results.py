@@ -39,8 +39,8 @@ COLUMNS = [  # (sort key, heading, title)
     ("share", "Meeting", "share of images that pass every check (SSIM target, chroma floor, visible damage at edges "
      "and in smooth areas, local floor when set)"),
     ("worst", "Worst SSIM", "lowest SSIM in the class at the chosen setting"),
-    ("savings", "Saved", "KB saved over the whole class against the current default, and the share of its bytes "
-     "(negative: costs more, because the default fails this class's checks)"),
+    ("savings", "vs today", "what the chosen setting saves over the whole class against the current default, "
+     "and the change in bytes (it costs more where the default fails this class's checks)"),
 ]
 
 
@@ -69,24 +69,13 @@ def sorted_rows(document: dict, sort: str, direction: str):
 
 
 def totals(document: dict) -> dict:
-    """Bytes at the chosen settings against the current default, over the classes that have a setting.
+    """Bytes at the chosen settings against the current default, every class counted
+    (``dct.report.totals``: a class with no qualifying setting keeps the default and saves nothing)."""
+    from dct.report import totals as document_totals
 
-    A class with no qualifying setting is left out of both sides (and listed), so it cannot make the
-    saving look bigger than it is.
-    """
-    entries = document.get("classes", [])
-    decided = [e for e in entries if e.get("setting")]
-    chosen = sum(e.get("estimated_bytes") or 0 for e in decided)
-    current = sum(e.get("current_bytes") or 0 for e in decided)
-    return {
-        "chosen_bytes": chosen,
-        "current_bytes": current,
-        "saved_bytes": current - chosen,
-        "savings": (1 - chosen / current) if current else None,
-        "images": sum(e.get("image_count") or 0 for e in decided),
-        "unmet": sorted({e["name"] for e in entries if not e.get("meets_target", True)}),
-        "undecided": sorted({e["name"] for e in entries if not e.get("setting")}),
-    }
+    out = document_totals(document)
+    out["unmet"] = sorted({e["name"] for e in document.get("classes", []) if not e.get("meets_target", True)})
+    return out
 
 
 def images_of(document: dict, entry: dict):

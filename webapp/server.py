@@ -48,14 +48,37 @@ def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: boo
     demo : bool
         Load ``demo_images/`` as a sample set, start its sweep and print the page that fills in live.
     """
-    from waitress import serve as waitress_serve
+    from waitress import create_server
 
     config = {"DATA_DIR": str(data_dir)} if data_dir is not None else None
     app = create_app(config)
+    try:
+        # Bind before anything else starts, so a busy port fails at once and cleanly.
+        server = create_server(app, host=host, port=port, threads=max(4, int(threads)))
+    except OSError as exc:
+        raise PortBusy(host, port, exc) from None
     base = f"http://{'localhost' if host in ('127.0.0.1', '0.0.0.0', '::') else host}:{port}"
     if demo:
         sweep_id = load_demo(app)
         print(f"Eightfold demo: open {base}/sweeps/{sweep_id} to watch the sweep fill in", file=sys.stderr)
     else:
         print(f"Eightfold: serving on {base}/ (data in {app.config['DATA_DIR']})", file=sys.stderr)
-    waitress_serve(app, host=host, port=port, threads=max(4, int(threads)))
+    try:
+        server.run()
+    finally:
+        server.close()
+
+
+class PortBusy(Exception):
+    """The address cannot be listened on (in use, or not this machine's); the message says what to do."""
+
+    def __init__(self, host, port, exc: OSError):
+        import errno
+
+        if exc.errno == errno.EADDRINUSE:
+            why = "the port is already in use (another Eightfold or another server?)"
+        elif exc.errno in (errno.EADDRNOTAVAIL, errno.EACCES):
+            why = exc.strerror or "address not available"
+        else:
+            why = exc.strerror or str(exc)
+        super().__init__(f"cannot listen on {host}:{port}: {why}; choose another with --port")
