@@ -180,11 +180,11 @@ def describe_saving(saved_bytes, savings, *, digits: int = 0) -> str:
     if saved_bytes is None:
         return "-"
     change = "" if savings is None else f" ({_signed_pct(-savings, digits)})"
-    if round(saved_bytes / 100) == 0:  # under 0.05 KB either way
+    if saved_bytes == 0:
         return f"same size{change}"
-    if saved_bytes > 0:
-        return f"saves {_kb(saved_bytes)} KB{change}"
-    return f"costs {_kb(-saved_bytes)} KB more{change}"
+    n = abs(saved_bytes)
+    amount = f"{n:,} bytes" if n < 50 else f"{_kb(n)} KB"  # never "0.0 KB" for a real difference
+    return f"saves {amount}{change}" if saved_bytes > 0 else f"costs {amount} more{change}"
 
 
 def _signed_pct(fraction: float, digits: int) -> str:

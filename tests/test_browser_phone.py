@@ -123,3 +123,23 @@ def test_marks_at_fit_leave_the_pixels_free(served, browser):
     page.click('button[data-zoom="2"]')
     assert style()[0] == "2px"  # the full outline where a window is large enough to see round
     page.close()
+
+
+def test_budget_page_thumbnails_desktop_and_phone(served, browser):
+    import json
+    import urllib.request
+
+    base, done, _ = served
+    req = urllib.request.Request(f"{base}/api/sweeps/{done}/freeze", data=b"{}", method="POST",
+                                 headers={"Content-Type": "application/json"})
+    with urllib.request.urlopen(req) as r:
+        view = json.loads(r.read())["token"]
+    for name, viewport in (("budget-desktop", {"width": 1366, "height": 900}), ("budget-phone", PHONE)):
+        page = browser.new_page(viewport=viewport)
+        page.goto(f"{base}/budgets/{view}")
+        thumb = page.locator("a.thumb-link img").first
+        thumb.wait_for()
+        page.wait_for_function("img => img.complete && img.naturalWidth > 0", arg=thumb.element_handle())
+        shot(page, name)
+        assert page_overflow(page) <= 0, name
+        page.close()

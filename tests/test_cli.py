@@ -210,7 +210,9 @@ def test_total_keeps_undecided_classes_at_their_current_size(tmp_path):
 @pytest.mark.parametrize("saved, share, words", [
     (258_700, 0.34, "saves 258.7 KB (\u221234 %)"),
     (-63_300, -2.09, "costs 63.3 KB more (+209 %)"),
-    (20, 0.0001, "same size (0 %)"),
+    (20, 0.0001, "saves 20 bytes (0 %)"),
+    (36, 0.025, "saves 36 bytes (\u22122 %)"),
+    (0, 0.0, "same size (0 %)"),
 ])
 def test_savings_in_words(saved, share, words):
     from dct.report import describe_estimate_error, describe_saving

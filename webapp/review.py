@@ -122,11 +122,13 @@ def _asset(db, document, set_id, n, kind):
         return imaging.png_response(imaging.original_png(root, sha, width))
     if kind == "candidate.jpg":
         return imaging.jpeg_response(imaging.candidate_jpeg(root, sha, width, setting))
+    if kind == "thumb.png":  # the budget page's thumbnails, reachable through the share link
+        return imaging.png_response(imaging.thumbnail_png(root, sha))
     return imaging.png_response(imaging.heatmap_png(root, sha, width, setting,
                                                     target_ssim=(entry or {}).get("target_ssim")))
 
 
-ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png'):kind>"
+ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png', 'thumb.png'):kind>"
 
 
 @bp.get("/sweeps/<sweep_id>/review/<int:n>")
