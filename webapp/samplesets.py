@@ -6,7 +6,7 @@ from collections import Counter
 
 from flask import Blueprint, abort, current_app, flash, redirect, render_template, request, url_for
 
-from webapp import imaging, ingest, store, validation
+from webapp import form_check, imaging, ingest, store, validation
 from webapp.views import is_htmx
 from webapp.worker import get_worker
 
@@ -126,14 +126,14 @@ def file_sizes(images) -> dict:
     return out
 
 
-def render_set(db, row, *, error=None, status=200, form=None):
+def render_set(db, row, *, error=None, status=200, form=None, errors=()):
     set_id = row["id"]
     current = form_current(form) if form is not None else dict(validation.DEFAULT_CURRENT)
     images = store.set_images(db, set_id)
     return render_template(
         "sampleset.html", s=row, images=images, file_bytes=file_sizes(images), rejected=store.set_rejected(db, set_id),
         targets=target_rows(db, set_id, form), current=current, sweeps=store.sweeps_for_set(db, set_id),
-        error=error,
+        error=error, errors=list(errors), invalid={e.field for e in errors},
     ), status
 
 
@@ -152,7 +152,7 @@ def edit_classes(set_id):
     except ValueError as exc:
         if is_htmx():
             return render_template("_partials/class_targets.html", targets=target_rows(db, set_id, request.form),
-                                   error=str(exc)), 400
+                                   targets_error=str(exc)), 400
         return render_set(db, row, error=str(exc), status=400, form=request.form)
     if is_htmx():
         return render_template("_partials/class_targets.html", targets=target_rows(db, set_id, request.form))
@@ -162,6 +162,10 @@ def edit_classes(set_id):
 @bp.post("/sets/<set_id>/sweeps")
 def start_sweep(set_id):
     db, row = load_set(set_id)
+    # Every bad box at once, in plain words, marked on the box itself (webapp.form_check).
+    errors = form_check.check_class_rows(request.form) + form_check.check_current(request.form)
+    if errors:
+        return render_set(db, row, status=400, form=request.form, errors=errors)
     try:
         apply_class_edits(db, set_id, request.form)
         classes = {}
