@@ -101,3 +101,16 @@ def check_table_change(form) -> list[FieldError]:
             except ValueError:
                 errors.append(FieldError(kind, message(kind, form[kind], name)))
     return errors
+
+
+MAX_SET_NAME = 120
+
+
+def set_name(value) -> str:
+    """A sample set's name as typed: 1 to 120 characters, no control characters."""
+    text = value.strip() if isinstance(value, str) else ""
+    if not text:
+        raise ValueError("Name: type a name for the set, such as “Autumn catalogue”.")
+    if len(text) > MAX_SET_NAME or any(ord(c) < 32 or ord(c) == 127 for c in text):
+        raise ValueError(f"Name: use at most {MAX_SET_NAME} characters, without line breaks or control characters.")
+    return text

@@ -136,6 +136,27 @@ def decide(sweep_id):
         params = validation.target_changes({"classes": {name: change}}, sweep["params"])
     except ValueError as exc:
         return _decide_error(sweep, str(exc), name, sort, direction, 400)
+    # Keep the targets the sweep ran with, so a change in the table can always be undone.
+    params["swept"] = sweep["params"].get("swept") or {"classes": sweep["params"]["classes"],
+                                                       "current": sweep["params"]["current"]}
+    return _save_and_show(db, sweep, params, sort, direction)
+
+
+@bp.post("/sweeps/<sweep_id>/restore-targets")
+def restore_targets(sweep_id):
+    """Back to the targets the sweep ran with (undoing every change made in the results table)."""
+    db, sweep = load_sweep(sweep_id)
+    sort, direction = request.form.get("sort"), request.form.get("dir")
+    swept = sweep["params"].get("swept")
+    if sweep["status"] != "done" or not swept:
+        return _decide_error(sweep, "nothing to restore: the targets are the ones the sweep ran with", None, sort,
+                             direction, 409)
+    params = {"classes": swept["classes"], "current": swept["current"], "swept": swept}
+    return _save_and_show(db, sweep, params, sort, direction)
+
+
+def _save_and_show(db, sweep, params, sort, direction):
+    sweep_id = sweep["id"]
     document = redecide(sweep, params)
     store.save_decision(db, sweep_id, params, document)
     sweep = store.get_sweep(db, sweep_id)
