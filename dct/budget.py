@@ -5,8 +5,12 @@ For one class at one delivery width, an image *accepts* a setting when
 * its luma SSIM reaches ``target_ssim``;
 * its Cb and Cr SSIM both reach ``chroma_floor`` (colour images only): luma SSIM cannot see the
   colour damage of chroma subsampling, so subsampling is chosen only where colour survives it;
+* no visible damage (``dct.damage``): its SSIM next to strong edges (``edge_ssim``) reaches
+  ``edge_floor`` and its extra error step at block boundaries in smooth areas (``blocking``) stays
+  within ``blocking_limit``; a mean is blind to ringing text on a mostly empty page, and unlike a
+  floor on small tiles these checks do not punish grain that JPEG smooths away unseen;
 * its local SSIM (a low percentile of 16x16-tile mean SSIM, ``SweepPoint.ssim_local``) reaches
-  ``local_floor``, unless the floor is 0: a mean is blind to damage in small regions such as text.
+  ``local_floor``, unless the floor is 0 (the default since the visible-damage check replaced it).
 
 The chosen setting has the smallest total estimated bytes over the class among settings that at
 least ``coverage`` of its images accept; ties go to the higher worst-image SSIM, then the higher
@@ -19,12 +23,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import damage
 from .tables import Setting
 
 DEFAULT_TARGET_SSIM = 0.95
 DEFAULT_COVERAGE = 0.9
-# Calibrated on the demo set's screenshots and on photos (README, "Choosing the local floor").
-DEFAULT_LOCAL_FLOOR = 0.85
+# Off by default: the visible-damage check (dct.damage, calibrated on tests/damage_set) replaced it.
+DEFAULT_LOCAL_FLOOR = 0.0
+DEFAULT_EDGE_FLOOR = damage.DEFAULT_EDGE_FLOOR
+DEFAULT_BLOCKING_LIMIT = damage.DEFAULT_BLOCKING_LIMIT
 _EPS = 1e-12
 
 
@@ -34,6 +41,8 @@ class Targets:
     coverage: float = DEFAULT_COVERAGE
     chroma_floor: float | None = None  # None: same as target_ssim
     local_floor: float = DEFAULT_LOCAL_FLOOR  # 0 turns the local check off
+    edge_floor: float = DEFAULT_EDGE_FLOOR  # 0 turns the edge check off
+    blocking_limit: float = DEFAULT_BLOCKING_LIMIT  # levels; 0 turns the blocking check off
 
     def __post_init__(self):
         for name in ("target_ssim", "coverage"):
@@ -44,6 +53,12 @@ class Targets:
             v = getattr(self, name)
             if v is not None and (not isinstance(v, (int, float)) or not 0 <= v <= 1):
                 raise ValueError(f"{name} must be a number in [0, 1], got {v!r}")
+        v = self.edge_floor
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v <= 1:
+            raise ValueError(f"edge_floor must be a number in [0, 1], got {v!r}")
+        v = self.blocking_limit
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not 0 <= v <= 255:
+            raise ValueError(f"blocking_limit must be a number of levels in [0, 255], got {v!r}")
 
     @property
     def effective_chroma_floor(self) -> float:
@@ -69,6 +84,14 @@ class Measure:
     ssim_cb: float | None
     ssim_cr: float | None
     ssim_local: float
+    edge_ssim: float = 1.0  # dct.damage; the neutral values are for curves made before it existed
+    blocking: float = 0.0
+
+
+def damage_failures(m: Measure, t: Targets) -> list[str]:
+    """The visible-damage checks an image fails: "edge", "blocking" (see dct.damage)."""
+    return damage.failures(damage.DamageResult(m.edge_ssim, m.blocking), edge_floor=t.edge_floor,
+                           blocking_limit=t.blocking_limit)
 
 
 def accepts(m: Measure, t: Targets) -> bool:
@@ -80,7 +103,7 @@ def accepts(m: Measure, t: Targets) -> bool:
             return False
     if t.local_floor > 0 and m.ssim_local + _EPS < t.local_floor:
         return False
-    return True
+    return not damage_failures(m, t)
 
 
 def slack(m: Measure, t: Targets) -> float:
@@ -90,6 +113,11 @@ def slack(m: Measure, t: Targets) -> float:
         margins += [m.ssim_cb - t.effective_chroma_floor, m.ssim_cr - t.effective_chroma_floor]
     if t.local_floor > 0:
         margins.append(m.ssim_local - t.local_floor)
+    if t.edge_floor > 0:
+        margins.append(m.edge_ssim - t.edge_floor)
+    if t.blocking_limit > 0:
+        # Levels, scaled to SSIM-like units (1 level ~ 0.01) so "closest to qualifying" stays sensible.
+        margins.append((t.blocking_limit - m.blocking) / 100.0)
     return min(margins)
 
 

@@ -69,6 +69,7 @@ def main():
 @click.option("--chroma-floor", type=float, callback=_floor, help="Cb and Cr SSIM floor [default: the target].")
 @click.option("--local-floor", type=float, callback=_floor, help=f"Floor for the worst 5% of 16x16-tile SSIM; 0 turns it off [default {budget.DEFAULT_LOCAL_FLOOR}].")
 @click.option("--current-quality", type=click.IntRange(1, 100), default=DEFAULT_CURRENT.quality, show_default=True, help="Quality of the setting in use today.")
+@click.option("--current-cutoff", type=click.IntRange(1, 64), default=DEFAULT_CURRENT.cutoff, show_default=True, help="Zigzag cutoff of the setting in use today (64 = all coefficients).")
 @click.option("--current-subsampling", type=click.Choice(SUBSAMPLINGS), default=DEFAULT_CURRENT.subsampling, show_default=True)
 @click.option("--classes", "classes_file", type=click.Path(exists=True, dir_okay=False, path_type=Path), help="classes.toml (default: SAMPLE_DIR/classes.toml if present).")
 @click.option("--json", "json_out", type=click.Path(dir_okay=False, path_type=Path), help="Write the result document here ('-' for stdout).")
@@ -84,7 +85,7 @@ def main():
 @click.option("--cache-dir", type=click.Path(file_okay=False, path_type=Path), help=f"Where finished per-image results are kept [default {default_cache_dir()}].")
 @click.option("--no-cache", is_flag=True, help="Do not read or write the result cache.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
-def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_quality, current_subsampling,
+def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_quality, current_cutoff, current_subsampling,
           classes_file, json_out, csv_out, curves_out, verify, workers, scheduler, qualities, cutoffs, subsamplings,
           no_refine, cache_dir, no_cache, quiet):
     """Sweep SAMPLE_DIR (one sub-folder per class) and print each class's cheapest setting."""
@@ -102,7 +103,7 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
         )
     except ValueError as exc:
         raise click.BadParameter(str(exc))
-    current = Setting(current_quality, 64, current_subsampling)
+    current = Setting(current_quality, current_cutoff, current_subsampling)
     overrides = {
         k: v
         for k, v in dict(target_ssim=target_ssim, coverage=coverage, chroma_floor=chroma_floor, local_floor=local_floor).items()
@@ -113,6 +114,9 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
         sample = discover(sample_dir, classes_file=classes_file, defaults=defaults)
     except ValueError as exc:
         raise click.ClickException(str(exc))
+    if sample.skipped:
+        n = len(sample.skipped)
+        click.echo(f"skipped {n} text file{'s' if n != 1 else ''} (not images): {', '.join(sample.skipped)}", err=True)
     if not sample.jobs:
         click.echo(f"no image files found in {sample_dir}", err=True)
         sys.exit(EXIT_NOTHING_USABLE)
@@ -122,7 +126,8 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
         runner = make_runner(workers=workers, scheduler=scheduler)
     except (ValueError, RunnerError) as exc:
         raise click.ClickException(str(exc))
-    bar = tqdm(total=len(sample.jobs), unit="img", desc="sweep", disable=quiet, file=sys.stderr)
+    # The bar counts image passes (the coarse grid, then each refinement), not images.
+    bar = tqdm(total=len(sample.jobs), unit="pass", desc="image passes", disable=quiet, file=sys.stderr)
 
     def progress(done, total):
         bar.total = total
@@ -274,18 +279,24 @@ def serve(host, port, data_dir, no_login):
 
     With EIGHTFOLD_PASSWORD (or EIGHTFOLD_PASSWORD_FILE) set, the owner's pages need a login.
     """
-    from webapp.server import serve as run
-
-    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=False, no_login=no_login)
+    _run_server(host, port, data_dir, demo=False, no_login=no_login)
 
 
 @main.command()
 @_server_options
 def demo(host, port, data_dir, no_login):
     """Start the web app with the demo sample set loaded and its sweep running."""
-    from webapp.server import serve as run
+    _run_server(host, port, data_dir, demo=True, no_login=no_login)
 
-    run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=True, no_login=no_login)
+
+
+def _run_server(host, port, data_dir, *, demo, no_login):
+    from webapp.server import PortBusy, serve as run
+
+    try:
+        run(host=host, port=port, data_dir=str(data_dir) if data_dir else None, demo=demo, no_login=no_login)
+    except PortBusy as exc:
+        raise click.ClickException(str(exc))
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -112,7 +112,8 @@ def _run_jobs(jobs, runner, cache, progress: _Progress, cancel, counters) -> dic
 
 
 def _measure(point) -> budget.Measure:
-    return budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local)
+    return budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
+                          point.edge_ssim, point.blocking)
 
 
 def class_tables(results: Iterable[ImageResult], class_name: str, width) -> dict[str, dict[Setting, budget.Measure]]:

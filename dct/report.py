@@ -4,12 +4,13 @@ Document keys (stable; scripts, the web API and exports depend on them)::
 
     schema_version, generator, created, current{quality,cutoff,subsampling}, grid{...},
     classes: [{name, width, image_count, target_ssim, coverage, chroma_floor, local_floor,
+               edge_floor, blocking_limit,
                setting{quality,cutoff,subsampling} | null, quant_tables{luma,chroma} | null,
                meets_target, coverage_met, share_meeting, estimated_bytes, mean_bytes, bpp,
                ssim_min, ssim_at_coverage, current_bytes, savings_vs_current, chosen_point,
                current_point, frontier[{quality,cutoff,subsampling,estimated_bytes,ssim,qualifies}], message}],
     images: [{path, class, width, pixel_width, pixel_height, setting, estimated_bytes, ssim,
-              ssim_cb, ssim_cr, ssim_local, meets}],
+              ssim_cb, ssim_cr, ssim_local, edge_ssim, blocking, damage_fails, meets}],
     rejected: [{path, error}]
 
 ``estimated_bytes`` of a class is the total over its images; ``ssim`` of a frontier point is the
@@ -56,6 +57,8 @@ def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
         "coverage": spec.coverage,
         "chroma_floor": chroma_floor,
         "local_floor": targets_local,
+        "edge_floor": targets.edge_floor,
+        "blocking_limit": targets.blocking_limit,
         "setting": decision.setting.as_dict() if decision.setting else None,
         "quant_tables": _tables(decision.setting) if decision.setting else None,
         "meets_target": s is not None,
@@ -78,7 +81,8 @@ def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
         closest = f"; closest: {best.setting.label()} with {best.share_accepting:.0%} of images" if best else ""
         entry["message"] = (
             f"no setting in the grid reaches SSIM {spec.target_ssim} (chroma floor {chroma_floor}, "
-            f"local floor {targets_local}) for {spec.coverage:.0%} of images{closest}"
+            f"local floor {targets_local}, edge floor {targets.edge_floor}, blocking limit "
+            f"{targets.blocking_limit}) for {spec.coverage:.0%} of images{closest}"
         )
     return entry
 
@@ -100,7 +104,8 @@ def build_document(*, decisions, results, rejected, current: Setting, grid: dict
             point = next((p for p in curve.points if p.setting == shown), None)
             if point is None:
                 continue
-            m = budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local)
+            m = budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
+                               point.edge_ssim, point.blocking)
             images.append(
                 {
                     "path": key,
@@ -114,6 +119,9 @@ def build_document(*, decisions, results, rejected, current: Setting, grid: dict
                     "ssim_cb": None if point.ssim_cb is None else round(point.ssim_cb, 6),
                     "ssim_cr": None if point.ssim_cr is None else round(point.ssim_cr, 6),
                     "ssim_local": round(point.ssim_local, 6),
+                    "edge_ssim": round(point.edge_ssim, 6),
+                    "blocking": round(point.blocking, 4),
+                    "damage_fails": budget.damage_failures(m, targets),
                     "meets": budget.accepts(m, targets),
                 }
             )
@@ -159,9 +167,76 @@ def _kb(n) -> str:
     return "-" if n is None else f"{n / 1000:,.1f}"
 
 
+MINUS = "\u2212"
+
+
+def describe_saving(saved_bytes, savings, *, digits: int = 0) -> str:
+    """A saving in words that cannot be misread: "saves 258.7 KB (−34 %)" / "costs 63.3 KB more (+209 %)".
+
+    ``saved_bytes`` is current minus chosen bytes; ``savings`` the fraction of the current bytes
+    saved (``savings_vs_current``). The percentage is the change in bytes, so it is negative when
+    the file gets smaller.
+    """
+    if saved_bytes is None:
+        return "-"
+    change = "" if savings is None else f" ({_signed_pct(-savings, digits)})"
+    if saved_bytes == 0:
+        return f"same size{change}"
+    n = abs(saved_bytes)
+    amount = f"{n:,} bytes" if n < 50 else f"{_kb(n)} KB"  # never "0.0 KB" for a real difference
+    return f"saves {amount}{change}" if saved_bytes > 0 else f"costs {amount} more{change}"
+
+
+def _signed_pct(fraction: float, digits: int) -> str:
+    text = f"{abs(fraction) * 100:.{digits}f}"
+    if float(text) == 0:
+        return f"{text} %"
+    return ("+" if fraction > 0 else MINUS) + text + " %"
+
+
+def totals(doc: dict) -> dict:
+    """The whole set against the current default, every class counted.
+
+    A class with no qualifying setting keeps the current default, so it is counted at its current
+    bytes on both sides: it saves nothing, and leaving it out would make the saving look bigger
+    than it is. Returns ``{"chosen_bytes", "current_bytes", "saved_bytes", "savings", "images",
+    "undecided"}`` (``savings`` None when the current bytes are unknown).
+    """
+    chosen = current = images = 0
+    known = True
+    undecided = []
+    for c in doc.get("classes", []):
+        images += c.get("image_count") or 0
+        if c.get("current_bytes") is None:
+            known = False
+            continue
+        current += c["current_bytes"]
+        if c.get("setting"):
+            chosen += c["estimated_bytes"]
+        else:
+            chosen += c["current_bytes"]
+            undecided.append(c["name"])
+    return {
+        "chosen_bytes": chosen,
+        "current_bytes": current,
+        "saved_bytes": current - chosen,
+        "savings": (1 - chosen / current) if known and current else None,
+        "images": images,
+        "undecided": sorted(set(undecided)),
+    }
+
+
+def describe_estimate_error(bytes_error: float) -> str:
+    """``(estimated - actual) / actual`` in words: "estimate 0.14 % under the real file"."""
+    if round(abs(bytes_error) * 100, 2) == 0:
+        return "estimate matches the real file"
+    side = "under" if bytes_error < 0 else "over"
+    return f"estimate {abs(bytes_error) * 100:.2f} % {side} the real file"
+
+
 def format_table(doc: dict) -> str:
     """A readable terminal table of the class decisions."""
-    head = ["class", "width", "imgs", "setting", "mean KB", "total KB", "bpp", "meeting", "worst SSIM", "saved"]
+    head = ["class", "width", "imgs", "setting", "mean KB", "total KB", "bpp", "meeting", "worst SSIM", "vs current default"]
     rows = []
     for c in doc["classes"]:
         s = c["setting"]
@@ -176,12 +251,23 @@ def format_table(doc: dict) -> str:
                 "-" if c["bpp"] is None else f"{c['bpp']:.2f}",
                 f"{c['share_meeting']:.0%}",
                 "-" if c["ssim_min"] is None else f"{c['ssim_min']:.4f}",
-                "-" if c["savings_vs_current"] is None else f"{c['savings_vs_current']:+.0%}",
+                "-" if c["savings_vs_current"] is None else describe_saving(
+                    c["current_bytes"] - c["estimated_bytes"], c["savings_vs_current"]),
             ]
         )
     widths = [max(len(r[i]) for r in rows + [head]) for i in range(len(head))]
     line = lambda r: "  ".join(v.ljust(w) if i in (0, 3) else v.rjust(w) for i, (v, w) in enumerate(zip(r, widths)))
     out = [line(head), line(["-" * w for w in widths])] + [line(r) for r in rows]
+    t = totals(doc)
+    if t["savings"] is not None and doc["classes"]:
+        cur = doc.get("current") or {}
+        label = f" (q{cur['quality']} k{cur['cutoff']} {cur['subsampling']})" if cur else ""
+        kept = ""
+        if t["undecided"]:
+            kept = (f"; {', '.join(t['undecided'])} keep{'s' if len(t['undecided']) == 1 else ''} the current "
+                    f"default (no qualifying setting), counted at {'its' if len(t['undecided']) == 1 else 'their'} current size")
+        out.append(f"total: {_kb(t['chosen_bytes'])} KB for {t['images']} image(s) against {_kb(t['current_bytes'])} KB "
+                   f"at the current default{label}: {describe_saving(t['saved_bytes'], t['savings'], digits=1)}{kept}")
     for c in doc["classes"]:
         if c["message"]:
             out.append(f"! {c['name']}: {c['message']}")
@@ -189,7 +275,7 @@ def format_table(doc: dict) -> str:
             v = c["verified"]
             out.append(
                 f"  verified {c['name']}: actual {_kb(v['actual_bytes'])} KB vs estimated {_kb(c['estimated_bytes'])} KB "
-                f"({v['bytes_error']:+.2%}), actual share meeting {v['actual_share_meeting']:.0%}, "
+                f"({describe_estimate_error(v['bytes_error'])}), actual share meeting {v['actual_share_meeting']:.0%}, "
                 f"actual worst SSIM {v['actual_ssim_min']:.4f}"
             )
     if doc["rejected"]:

@@ -37,9 +37,11 @@ the file's ``[defaults]``, then the class's own table.
 
 Which files
 -----------
-Nothing is silently dropped: every regular file is a candidate, except hidden files and folders (a
-name starting with ".") and the classes file. Discovery does not decode; workers do, and turn decode
-failures into rejections. Entries discovery cannot use (broken links, unlistable folders, sockets,
+Every regular file is a candidate, except hidden files and folders (a name starting with "."), the
+classes file, and documentation or text files that sit beside the images (``README``, ``*.md``,
+``*.txt`` and the like, by name; ``SampleSet.skipped`` lists them, so they are not lost, only not
+reported as broken images). Discovery does not decode; workers do, and turn decode failures into
+rejections. Entries discovery cannot use (broken links, unlistable folders, sockets,
 link loops) are listed in ``SampleSet.rejected`` with a reason. Everything is sorted, so the same
 folder always gives the same set.
 """
@@ -174,12 +176,29 @@ class SampleSet:
         Sorted by key.
     rejected : list of Rejection
         Entries refused at discovery, sorted by path (relative, '/' separators).
+    skipped : list of str
+        Documentation and text files left out by name (see :func:`is_text_file`), sorted.
     """
 
     root: str
     classes: dict[str, ClassSpec]
     jobs: list[ImageJob]
     rejected: list[Rejection] = field(default_factory=list)
+    skipped: list[str] = field(default_factory=list)
+
+
+# Files that travel with image folders but are never images: judged by name only (a text file
+# named like an image still goes to the decoder and is reported as not an image).
+TEXT_SUFFIXES = frozenset({".md", ".markdown", ".txt", ".rst", ".toml", ".json", ".csv", ".tsv", ".yaml", ".yml",
+                           ".html", ".htm", ".xml", ".pdf", ".log", ".py", ".sh"})
+TEXT_STEMS = frozenset({"readme", "license", "licence", "notice", "changelog", "authors", "copying"})
+
+
+def is_text_file(name: str) -> bool:
+    """True for documentation/text file names (README, notes.md, LICENSE.txt, ...)."""
+    base = name.rsplit("/", 1)[-1].lower()
+    _, dot, suffix = base.rpartition(".")
+    return ("." + suffix) in TEXT_SUFFIXES if dot else base in TEXT_STEMS
 
 
 @dataclass(frozen=True)
@@ -390,7 +409,10 @@ def discover(sample_dir, *, classes_file=None, defaults: ClassSpec | None = None
     specs: dict[str, ClassSpec] = {}
     bad_names: dict[str, str] = {}
     jobs = []
+    skipped = sorted(key for key, _ in files if is_text_file(key))
     for key, path in sorted(files):
+        if is_text_file(key):
+            continue
         name = assign_class(key, parsed.rules)
         spec = specs.get(name)
         if spec is None:
@@ -409,6 +431,7 @@ def discover(sample_dir, *, classes_file=None, defaults: ClassSpec | None = None
         classes={name: specs[name] for name in sorted(specs)},
         jobs=jobs,
         rejected=sorted(rejected, key=lambda r: r.path),
+        skipped=skipped,
     )
 
 

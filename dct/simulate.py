@@ -31,7 +31,7 @@ from typing import Iterable
 
 import numpy as np
 
-from . import color, entropy, quality
+from . import color, damage, entropy, quality
 from .integer_dct import forward_dct_islow, inverse_dct_islow
 from .tables import SAMPLING_FACTORS, UNZIGZAG, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
 from .transform import BLOCK
@@ -224,6 +224,8 @@ class SweepPoint:
     ssim_cr: float | None
     ssim_local: float  # low percentile of 16x16-tile mean luma SSIM (quality.LOCAL_PERCENTILE)
     psnr: float  # luma, dB
+    edge_ssim: float = 1.0  # dct.damage: low percentile of luma SSIM next to strong edges
+    blocking: float = 0.0  # dct.damage: extra error step at block boundaries in smooth areas, levels
 
     def as_dict(self) -> dict:
         d = self.setting.as_dict() if self.setting is not None else {}
@@ -235,6 +237,8 @@ class SweepPoint:
             ssim_cr=self.ssim_cr,
             ssim_local=self.ssim_local,
             psnr=None if math.isinf(self.psnr) else self.psnr,
+            edge_ssim=self.edge_ssim,
+            blocking=self.blocking,
         )
         return d
 
@@ -249,6 +253,8 @@ class SweepPoint:
             ssim_cr=None if d.get("ssim_cr") is None else float(d["ssim_cr"]),
             ssim_local=float(d["ssim_local"]),
             psnr=math.inf if d.get("psnr") is None else float(d["psnr"]),
+            edge_ssim=float(d.get("edge_ssim", 1.0)),
+            blocking=float(d.get("blocking", 0.0)),
         )
 
 
@@ -290,6 +296,7 @@ class PreparedImage:
         self._chroma_q = _Recent(4)
         self._luma_planes = _Recent(2)
         self._chroma_planes = _Recent(2)
+        self._damage_ref: damage.EdgeReference | None = None
 
     # -- transforms, done once ---------------------------------------------------------------
 
@@ -328,6 +335,11 @@ class PreparedImage:
         if self._luma_ref is None:
             self._luma_ref = quality.ReferenceStats(self._planes[0])
         return self._luma_ref
+
+    def _damage_reference(self) -> damage.EdgeReference:
+        if self._damage_ref is None:
+            self._damage_ref = damage.EdgeReference(self._planes[0])
+        return self._damage_ref
 
     def _chroma_reference(self) -> tuple[quality.ReferenceStats, quality.ReferenceStats]:
         if self._chroma_ref is None:
@@ -417,7 +429,9 @@ class PreparedImage:
         scan = self._scan(luma_t, chroma_t, subsampling)
         optimal = self._file_size(scan, True)
         standard = self._file_size(scan, False)
-        luma_ssim = self._luma_reference().compare(seen_luma, want_map=want_arrays)
+        # The visible-damage statistics (dct.damage) read the luma planes and the SSIM map.
+        luma_ssim = self._luma_reference().compare(seen_luma, want_map=True)
+        seen = self._damage_reference().measure(seen_luma, luma_ssim.ssim_map)
         fields = dict(
             setting=setting,
             estimated_bytes=optimal.total,
@@ -427,6 +441,8 @@ class PreparedImage:
             ssim_cr=None if chroma is None else chroma.ssim_cr.ssim,
             ssim_local=luma_ssim.local,
             psnr=luma_ssim.psnr,
+            edge_ssim=seen.edge_ssim,
+            blocking=seen.blocking,
         )
         if not want_arrays:
             return SweepPoint(**fields)
@@ -461,7 +477,8 @@ def simulate(
     -------
     Simulation
         ``estimated_bytes`` (int, whole file with optimal Huffman tables), ``standard_bytes``,
-        ``ssim`` (luma), ``ssim_cb``, ``ssim_cr``, ``ssim_local``, ``psnr``, ``ssim_map`` (H x W float32),
+        ``ssim`` (luma), ``ssim_cb``, ``ssim_cr``, ``ssim_local``, ``psnr``, ``edge_ssim`` and
+        ``blocking`` (:mod:`dct.damage`), ``ssim_map`` (H x W float32),
         ``reconstructed`` (uint8, the shape of ``rgb``) and ``tables``.
     """
     _check_pixels(rgb)

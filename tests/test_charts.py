@@ -395,3 +395,15 @@ def test_rejected_frontier_points_are_hollow():
     hollow = [c for c in circles if "fc-rejected" in c.get("class")]
     assert len(hollow) == 1 and hollow[0].get("fill") == "#ffffff"
     assert "rejected" in hollow[0].find("{http://www.w3.org/2000/svg}title").text
+
+
+def test_target_labels_are_never_rounded_into_another_value():
+    from webapp.charts import _format_target, frontier_svg
+
+    assert _format_target(0.99999) == "0.99999" and _format_target(0.95) == "0.95" and _format_target(0.9) == "0.90"
+    entry = {"name": "x", "width": None, "image_count": 1, "target_ssim": 0.99999, "setting": None,
+             "estimated_bytes": None, "ssim_min": None, "chosen_point": None, "current_point": None,
+             "frontier": [{"quality": 50, "cutoff": 64, "subsampling": "4:2:0", "estimated_bytes": 1000,
+                           "ssim": 0.97, "qualifies": False}]}
+    svg = frontier_svg(entry)
+    assert "0.99999" in svg and "target 1.00" not in svg and "SSIM 1.00 " not in svg

@@ -163,3 +163,74 @@ def test_serve_starts_waitress_and_answers(tmp_path):
     finally:
         proc.terminate()
         proc.wait(timeout=20)
+
+
+def test_total_line_counts_every_class_and_the_bar_counts_passes(tmp_path):
+    root = write_set(tmp_path / "set", flat=1, photo=2)
+    (root / "README.md").write_text("# notes beside the images\n")
+    out = tmp_path / "doc.json"
+    result = CliRunner().invoke(main, ["sweep", str(root), "--json", str(out), "--no-cache", "--no-refine",
+                                       "--workers", "1", "--cutoffs", "64,20", "--current-cutoff", "20"])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(out.read_text())
+    assert doc["current"] == {"quality": 85, "cutoff": 20, "subsampling": "4:2:0"}
+    # README.md is skipped quietly, not reported as a broken image.
+    assert doc["rejected"] == [] and "skipped 1 text file (not images): README.md" in result.output
+    assert "rejected" not in result.output
+    # The bar counts image passes, and says so.
+    assert "pass/s" in result.output or "s/pass" in result.output
+    assert "img/s" not in result.output
+    from dct.report import describe_saving, totals
+
+    t = totals(doc)
+    assert t["current_bytes"] == sum(c["current_bytes"] for c in doc["classes"])
+    line = next(l for l in result.output.splitlines() if l.startswith("total: "))
+    assert f"against {t['current_bytes'] / 1000:,.1f} KB at the current default (q85 k20 4:2:0)" in line
+    assert describe_saving(t["saved_bytes"], t["savings"], digits=1) in line
+
+
+def test_total_keeps_undecided_classes_at_their_current_size(tmp_path):
+    root = write_set(tmp_path / "set", flat=1, photo=1)
+    (root / "classes.toml").write_text('[[class]]\nname = "photo"\ntarget_ssim = 0.99999\ncoverage = 1\n')
+    out = tmp_path / "doc.json"
+    result = CliRunner().invoke(main, ["sweep", str(root), "--json", str(out), "--no-cache", "--no-refine", *FAST])
+    assert result.exit_code == EXIT_UNMET
+    doc = json.loads(out.read_text())
+    flat, photo = (next(c for c in doc["classes"] if c["name"] == n) for n in ("flat", "photo"))
+    assert photo["setting"] is None and flat["setting"] is not None
+    from dct.report import totals
+
+    t = totals(doc)
+    assert t["current_bytes"] == flat["current_bytes"] + photo["current_bytes"]
+    assert t["chosen_bytes"] == flat["estimated_bytes"] + photo["current_bytes"]
+    assert t["undecided"] == ["photo"]
+    assert "photo keeps the current default (no qualifying setting), counted at its current size" in result.output
+
+
+@pytest.mark.parametrize("saved, share, words", [
+    (258_700, 0.34, "saves 258.7 KB (\u221234 %)"),
+    (-63_300, -2.09, "costs 63.3 KB more (+209 %)"),
+    (20, 0.0001, "saves 20 bytes (0 %)"),
+    (36, 0.025, "saves 36 bytes (\u22122 %)"),
+    (0, 0.0, "same size (0 %)"),
+])
+def test_savings_in_words(saved, share, words):
+    from dct.report import describe_estimate_error, describe_saving
+
+    assert describe_saving(saved, share) == words
+    assert describe_estimate_error(-0.0014) == "estimate 0.14 % under the real file"
+    assert describe_estimate_error(0.02) == "estimate 2.00 % over the real file"
+
+
+@pytest.mark.parametrize("command", ["serve", "demo"])
+def test_busy_port_is_a_clear_error(tmp_path, command):
+    import socket
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        s.listen(1)
+        port = s.getsockname()[1]
+        result = CliRunner().invoke(main, [command, "--port", str(port), "--data-dir", str(tmp_path / "d")])
+    assert result.exit_code == 1
+    assert f"cannot listen on 127.0.0.1:{port}: the port is already in use" in result.output
+    assert "--port" in result.output and "Traceback" not in result.output

@@ -170,3 +170,15 @@ def test_legend_svg():
     assert opacities == sorted(opacities) and opacities[0] < 0.2 and opacities[-1] > 0.8
     with pytest.raises(ValueError, match="1.5"):
         ssim_legend_svg(1.5)
+
+
+def test_high_moves_where_the_overlay_starts_and_the_key_follows():
+    ssim = np.array([[1.0, 0.85, 0.8, 0.7, 0.6]])
+    rgba = heat_rgba(ssim, low=0.6, high=0.8)
+    assert rgba[0, 0, 3] == 0 and rgba[0, 1, 3] == 0 and rgba[0, 2, 3] == 0  # clear at and above high
+    assert 0 < rgba[0, 3, 3] < rgba[0, 4, 3] == DEFAULT_MAX_ALPHA
+    svg = ssim_legend_svg(0.6, high=0.8)
+    assert "\u2265 0.80" in svg and "0.70" in svg and "\u2264 0.60" in svg
+    assert "clear at SSIM 0.80 or higher" in svg
+    with pytest.raises(ValueError, match="high must be"):
+        heat_rgba(ssim, low=0.6, high=0.6)

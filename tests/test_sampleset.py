@@ -70,9 +70,19 @@ def test_every_non_hidden_file_is_a_candidate(tmp_path):
         ["a/photo.jpg", "a/notes.txt", "a/README", "a/.DS_Store", ".git/config", "a/.hidden/x.jpg", "classes.toml"],
     )
     (tmp_path / "classes.toml").write_text("")
-    keys = [j.key for j in discover(tmp_path).jobs]
-    # Nothing is silently dropped: the text file goes forward and will be refused by the decoder.
-    assert keys == ["a/README", "a/notes.txt", "a/photo.jpg"]
+    found = discover(tmp_path)
+    # Documentation beside the images is listed as skipped, not sent to the decoder as a broken image.
+    assert [j.key for j in found.jobs] == ["a/photo.jpg"]
+    assert found.skipped == ["a/README", "a/notes.txt"] and found.rejected == []
+
+
+@pytest.mark.parametrize("name, text", [("README", True), ("readme.md", True), ("LICENSE.txt", True),
+                                        ("notes.TXT", True), ("classes.json", True), ("photo.jpg", False),
+                                        ("readme.png", False), ("scan.tif", False), ("noext", False)])
+def test_text_files_are_known_by_name(name, text):
+    from dct.sampleset import is_text_file
+
+    assert is_text_file(name) is text
 
 
 def test_empty_folder_gives_an_empty_set(tmp_path):

@@ -209,3 +209,22 @@ def test_designer_review_through_the_share_link(budget):
     assert r.status_code == 200 and "Weakest spots" in r.get_data(as_text=True)
     assert client.get(f"/budgets/{view}/review/0/candidate.jpg").mimetype == "image/jpeg"
     assert client.get("/budgets/not-a-token/review/0").status_code == 404
+
+
+def test_designer_view_has_thumbnails_of_the_weakest_images_and_plain_labels(budget):
+    import re
+
+    client, _, view, _, _ = budget
+    html = client.get(f"/budgets/{view}").get_data(as_text=True)
+    thumbs = re.findall(rf'<a class="thumb-link" href="/budgets/{view}/review/(\d+)">\s*<img src="/budgets/{view}/review/(\d+)/thumb.png"', html)
+    assert thumbs and all(a == b for a, b in thumbs)  # each thumbnail links to its own review
+    r = client.get(f"/budgets/{view}/review/{thumbs[0][0]}/thumb.png")
+    assert r.status_code == 200 and r.mimetype == "image/png"
+    from PIL import Image
+    import io as _io
+
+    assert Image.open(_io.BytesIO(r.data)).width <= 96
+    # Plain words first, the technical term beside them, and the glossary on the page.
+    for words in ("Encoder setting", "Average size", "Images that pass", "Least faithful image", "(worst SSIM)",
+                  "What the numbers mean", "Halos and blur at sharp edges"):
+        assert words in html

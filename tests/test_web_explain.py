@@ -194,8 +194,10 @@ def test_results_table_shows_saved_kb_and_glossary(swept):
     for e in doc["classes"]:
         if e["setting"]:
             saved = e["current_bytes"] - e["estimated_bytes"]
-            assert f"{views.kb_signed(saved)} KB · {views.pct(e['savings_vs_current'], 1)}" in html
-    assert "What the numbers mean" in html and "Local floor" in html and "Cutoff (k)" in html
+            assert views.saving(saved, e["savings_vs_current"]) in html
+            assert ("saves " if saved > 0 else "costs ") in views.saving(saved, e["savings_vs_current"])
+    assert "What the numbers mean" in html and "(local floor)" in html and "(cutoff, k)" in html
+    assert "Halos and blur at sharp edges" in html and "(edge SSIM)" in html
 
 
 # --- review page ---
@@ -214,9 +216,20 @@ def test_review_page_back_link_marks_heat_key_and_real_size(swept):
         assert key in html
 
 
-def test_heat_low_puts_the_target_a_third_along_the_ramp():
-    assert imaging.heat_low(0.95) == 0.85 and imaging.heat_low(0.97) == 0.91 and imaging.heat_low(0.999) == 0.98
-    assert imaging.heat_low(0.6) == 0.5 and imaging.heat_low(None) == 0.5
+def test_heat_scale_follows_the_image_so_texture_is_not_all_red():
+    from webapp.heatmap import heat_rgba
+
+    rng = np.random.default_rng(0)
+    texture = np.clip(rng.normal(0.8, 0.05, (64, 64)), -1, 1)  # smoothed grain: SSIM ~0.8 everywhere
+    high, low = imaging.heat_scale(texture, 0.95)
+    assert high == round(float(np.median(texture)), 2) and low <= high - 0.1
+    alpha = heat_rgba(texture, low=low, high=high)[..., 3]
+    assert (alpha > 0).mean() <= 0.55  # at most about half the picture is coloured
+    # A text page: paper is intact (SSIM 1), the glyphs' neighbourhood is damaged.
+    page = np.ones((64, 64))
+    page[20:30, 10:50] = 0.6
+    assert imaging.heat_scale(page, 0.95) == (0.95, 0.6)
+    assert imaging.heat_scale(page, None)[0] == 0.95
 
 
 def test_heat_png_tolerates_float_rounding_above_one():
@@ -243,7 +256,14 @@ def test_heat_png_uses_the_class_target(swept):
     setting = entry["setting"] or doc["current"]  # an undecided class is reviewed at the current default
     ssim_map = imaging.ssim_map(app.config["DATA_DIR"], sha, im["width"], setting)
     heat = client.get(f"/sweeps/{sweep_id}/review/{n}/heat.png").data
-    assert heat == ssim_heatmap_png(ssim_map, low=3 * 0.97 - 2, max_alpha=imaging.HEAT_MAX_ALPHA)
+    high, low = imaging.heat_scale(ssim_map, 0.97)
+    assert high <= 0.97
+    assert heat == ssim_heatmap_png(ssim_map, low=low, high=high, max_alpha=imaging.HEAT_MAX_ALPHA)
+    html = client.get(f"/sweeps/{sweep_id}/review/{n}").get_data(as_text=True)
+    key = html.split('id="heat-key"', 1)[1].split("</div>", 1)[0]
+    # The key shows the same scale as the overlay, and its words match its colours.
+    assert f"clear at SSIM {high:.2f} or higher" in key and f"darkest at SSIM {low:.2f} or lower" in key
+    assert f"full brick red at {low:.2f} or below" in key and "Darker = lower" not in key
 
 
 def test_budget_review_goes_back_to_the_class_card(swept):

@@ -236,7 +236,8 @@ def test_redecide_via_htmx_matches_pipeline_redecide(swept):
     "form, message",
     [
         ({"class": "product", "target_ssim": "1.2"},
-         "classes[&#39;product&#39;].target_ssim must be a number greater than 0 and at most 1, got &#39;1.2&#39;"),
+         "Target SSIM for “product”: enter a number above 0 and at most 1, such as 0.95 (you typed “1.2”). "
+         "Nothing was changed."),
         ({"class": "nope", "coverage": "0.5"}, "unknown class &#39;nope&#39; (this set has: product, hero)"),
     ],
 )
@@ -353,10 +354,23 @@ def test_page_form_starts_a_sweep_and_rejects_bad_targets(swept):
     _, client, set_id, _, _ = swept
     form = {"cls-0": "product", "t-0": "0.97", "c-0": "0.9", "w-0": "", "cls-1": "hero", "t-1": "1.5", "c-1": "0.9",
             "w-1": "", "cur_quality": "85", "cur_cutoff": "64", "cur_subsampling": "4:2:0"}
+    form.update({"c-0": "90%", "cur_quality": "0"})
     r = client.post(f"/sets/{set_id}/sweeps", data=form)
     assert r.status_code == 400
-    assert ("classes[&#39;hero&#39;].target_ssim must be a number greater than 0 and at most 1, got &#39;1.5&#39;"
-            in r.get_data(as_text=True))
+    html = r.get_data(as_text=True)
+    # Every bad box at once, in plain words, listed once, each box marked and keeping what was typed.
+    assert "3 boxes need fixing before the sweep can start" in html
+    messages = ["Target SSIM for “hero”: enter a number above 0 and at most 1, such as 0.95 (you typed “1.5”).",
+                "Coverage for “product”: enter a share above 0 and at most 1, such as 0.9 for 90 % (you typed “90%”).",
+                "Quality: enter a whole number from 1 to 100 (you typed “0”)."]
+    for m in messages:
+        assert html.count(m) == 1
+    assert "classes[" not in html and "got &#39;" not in html
+    for field, value in (("t-1", "1.5"), ("c-0", "90%"), ("cur_quality", "0")):
+        assert f'name="{field}" value="{value}" id="f-{field}" class="invalid" aria-invalid="true"' in html or \
+            f'name="{field}" id="f-{field}" class="invalid" aria-invalid="true" aria-describedby="err-{field}" type="number" min="1" max="100" value="{value}"' in html
+    assert 'name="t-0" value="0.97" id="f-t-0" inputmode' in html  # a good box is not marked
+    form.update({"c-0": "0.9", "cur_quality": "85"})
     form["t-1"] = "0.96"
     form["w-1"] = "48, "
     r = client.post(f"/sets/{set_id}/sweeps", data=form)
@@ -383,7 +397,7 @@ def test_demo_loader_is_idempotent(tmp_path):
     app.extensions["eightfold_worker"].stop()
 
 
-def test_totals_leave_out_classes_without_a_setting(swept):
+def test_totals_count_classes_without_a_setting_at_the_current_default(swept):
     from webapp.results import totals
 
     _, client, _, sweep_id, _ = swept
@@ -395,10 +409,12 @@ def test_totals_leave_out_classes_without_a_setting(swept):
         assert all(e["setting"] is None for e in product)
         t = totals(doc)
         assert t["undecided"] == ["product"]
-        assert t["chosen_bytes"] == sum(e["estimated_bytes"] for e in hero)
-        assert t["current_bytes"] == sum(e["current_bytes"] for e in hero)
+        # The undecided class keeps today's default: counted on both sides, it saves nothing, so the
+        # headline cannot look bigger than the set's real saving.
+        assert t["chosen_bytes"] == sum(e["estimated_bytes"] for e in hero) + sum(e["current_bytes"] for e in product)
+        assert t["current_bytes"] == sum(e["current_bytes"] for e in hero + product)
         page = client.get(f"/sweeps/{sweep_id}").get_data(as_text=True)
-        assert "No setting reaches the target for: product (left out of these totals)." in page
+        assert "No setting reaches the target for: product; counted at the current default, so it saves nothing." in page
     finally:
         client.post(f"/api/sweeps/{sweep_id}/decide", json={"classes": {"product": {"target_ssim": 0.95}}})
 
@@ -414,13 +430,25 @@ def test_serve_demo_prints_the_live_page_and_starts_waitress(tmp_path, monkeypat
         (folder / name).write_bytes(data)
     monkeypatch.setattr(server, "DEMO_DIR", folder)
     calls = []
-    monkeypatch.setattr(waitress, "serve", lambda app, **kw: calls.append((app, kw)))
+
+    class FakeServer:  # stands in for waitress's bound server: records, never listens
+        def __init__(self, app, **kw):
+            calls.append((app, kw))
+
+        def run(self):
+            calls.append("run")
+
+        def close(self):
+            calls.append("close")
+
+    monkeypatch.setattr(waitress, "create_server", FakeServer)
     server.serve(port=8123, data_dir=tmp_path / "data", demo=True)
-    (app, kw), = calls
+    (app, kw), *rest = calls
     from webapp.server import WAITRESS_LIMITS
 
     assert kw == {"host": "127.0.0.1", "port": 8123, "threads": 12,
                   "max_request_body_size": app.config["MAX_CONTENT_LENGTH"], **WAITRESS_LIMITS}
+    assert rest == ["run", "close"]
     err = capsys.readouterr().err
     sweep_id = err.split("/sweeps/")[1].split()[0]
     assert f"http://localhost:8123/sweeps/{sweep_id}" in err

@@ -182,6 +182,13 @@ def _format_ssim(x: float) -> str:
     return s[:-1] if s.endswith("0") else s
 
 
+def _format_target(x: float) -> str:
+    """A target exactly as set, never rounded into another value (0.99999 must not read "1.00")."""
+    s = f"{x:.6f}".rstrip("0")
+    head, _, tail = s.partition(".")
+    return f"{head}.{tail.ljust(2, '0')}"
+
+
 def _format_kb(kb: float) -> str:
     if kb >= 100:
         return f"{kb:.0f} KB"
@@ -317,7 +324,7 @@ def frontier_svg(class_entry: dict, *, width: int = 560, height: int = 300) -> s
     elif current_kb is not None:
         summary.append(f"Current default: {_format_kb(current_kb)}.")
     if target is not None:
-        summary.append(f"Target SSIM {_format_ssim(target)}.")
+        summary.append(f"Target SSIM {_format_target(target)}.")
     aria = " ".join(summary)
 
     out.append(
@@ -432,7 +439,7 @@ def frontier_svg(class_entry: dict, *, width: int = 560, height: int = 300) -> s
 
     # Target label: along the line, preferring the left end (few KB at high SSIM is rarely reachable).
     if ty is not None:
-        text = f"target {_format_ssim(target)}"
+        text = f"target {_format_target(target)}"
         w = _text_width(text)
         spots = [
             (left + 6, ty - 5, "start"), (left + 6, ty + 14, "start"),
@@ -447,7 +454,7 @@ def frontier_svg(class_entry: dict, *, width: int = 560, height: int = 300) -> s
     # No setting met the target: say so, preferring the corner a frontier avoids (many KB, low SSIM).
     if target_unmet:
         msg = (
-            f"No setting tried reaches SSIM {_format_ssim(target)}" if target is not None
+            f"No setting tried reaches SSIM {_format_target(target)}" if target is not None
             else "No setting chosen for this class"
         )
         w = _text_width(msg)

@@ -1,7 +1,8 @@
 """SSIM heat-map overlays (PNG) and their colour key (SVG).
 
-An SSIM map (1 = no visible change) becomes an RGBA overlay that is transparent where the image is
-intact and turns opaque and warm where it is damaged. The colour ramp is our own: four anchor colours
+An SSIM map (1 = no visible change) becomes an RGBA overlay that is transparent at or above a chosen
+SSIM (``high``, 1 by default; the review page picks it per image so that smoothed texture is not
+coloured all over) and turns opaque and warm towards ``low``. The colour ramp is our own: four anchor colours
 in CIELAB with lightness falling steadily from a pale straw to a brick red, interpolated in Lab, so
 "darker" always reads as "worse" - also in greyscale and for the common colour-vision deficiencies,
 which keep lightness order.
@@ -123,11 +124,21 @@ def _check_map(ssim_map) -> np.ndarray:
     return values
 
 
-def heat_rgba(ssim_map: np.ndarray, *, low: float = 0.5, max_alpha: int = DEFAULT_MAX_ALPHA) -> np.ndarray:
+def _check_high(high, low: float) -> float:
+    if isinstance(high, bool) or not isinstance(high, (int, float, np.floating, np.integer)):
+        raise ValueError(f"high must be a number in (low, 1], got {high!r}")
+    high = float(high)
+    if not (math.isfinite(high) and low < high <= 1.0):
+        raise ValueError(f"high must be a number in (low, 1] with low={low!r}, got {high!r}")
+    return high
+
+
+def heat_rgba(ssim_map: np.ndarray, *, low: float = 0.5, high: float = 1.0,
+              max_alpha: int = DEFAULT_MAX_ALPHA) -> np.ndarray:
     """Colour an SSIM map as straight (not premultiplied) RGBA.
 
-    Damage ``t = (1 - ssim) / (1 - low)``, clipped to [0, 1], picks the ramp colour; alpha is
-    ``round(max_alpha * t ** 0.75)``: 0 at SSIM 1, ``max_alpha`` at SSIM <= ``low``.
+    Damage ``t = (high - ssim) / (high - low)``, clipped to [0, 1], picks the ramp colour; alpha is
+    ``round(max_alpha * t ** 0.75)``: 0 at SSIM >= ``high``, ``max_alpha`` at SSIM <= ``low``.
 
     Parameters
     ----------
@@ -135,6 +146,8 @@ def heat_rgba(ssim_map: np.ndarray, *, low: float = 0.5, max_alpha: int = DEFAUL
         Local SSIM in [-1, 1], 1 = identical.
     low : float, keyword-only
         SSIM at and below which the overlay is at full strength; in [-1, 1).
+    high : float, keyword-only
+        SSIM at and above which the overlay is clear; in (low, 1].
     max_alpha : int, keyword-only
         Alpha at full strength, 1..255.
 
@@ -144,8 +157,9 @@ def heat_rgba(ssim_map: np.ndarray, *, low: float = 0.5, max_alpha: int = DEFAUL
     """
     values = _check_map(ssim_map)
     low = _check_low(low)
+    high = _check_high(high, low)
     max_alpha = _check_max_alpha(max_alpha)
-    t = np.clip((1.0 - values) / np.float32(1.0 - low), 0.0, 1.0)
+    t = np.clip((np.float32(high) - values) / np.float32(high - low), 0.0, 1.0)
     index = np.rint(t * (_LUT_SIZE - 1)).astype(np.intp)
     alpha_lut = np.rint(max_alpha * np.linspace(0.0, 1.0, _LUT_SIZE) ** _ALPHA_EXPONENT).astype(np.uint8)
     out = np.empty(values.shape + (4,), dtype=np.uint8)
@@ -155,7 +169,8 @@ def heat_rgba(ssim_map: np.ndarray, *, low: float = 0.5, max_alpha: int = DEFAUL
 
 
 def ssim_heatmap_png(
-    ssim_map: np.ndarray, *, low: float = 0.5, alpha: bool = True, max_alpha: int = DEFAULT_MAX_ALPHA
+    ssim_map: np.ndarray, *, low: float = 0.5, high: float = 1.0, alpha: bool = True,
+    max_alpha: int = DEFAULT_MAX_ALPHA,
 ) -> bytes:
     """PNG bytes of the heat-map for an SSIM map, one PNG pixel per map entry.
 
@@ -165,6 +180,8 @@ def ssim_heatmap_png(
         Local SSIM in [-1, 1], 1 = identical.
     low : float, keyword-only
         SSIM at and below which colour and opacity are at full strength; in [-1, 1).
+    high : float, keyword-only
+        SSIM at and above which the overlay is clear; in (low, 1].
     alpha : bool, keyword-only
         True: RGBA overlay (transparent where SSIM is 1). False: opaque RGB heat-map on its own.
     max_alpha : int, keyword-only
@@ -177,7 +194,7 @@ def ssim_heatmap_png(
     """
     if not isinstance(alpha, bool):
         raise ValueError(f"alpha must be True or False, got {alpha!r}")
-    rgba = heat_rgba(ssim_map, low=low, max_alpha=max_alpha)
+    rgba = heat_rgba(ssim_map, low=low, high=high, max_alpha=max_alpha)
     pixels = rgba if alpha else np.ascontiguousarray(rgba[..., :3])
     buf = io.BytesIO()
     # A fresh image carries no info dict, so Pillow writes only IHDR, IDAT and IEND.
@@ -185,8 +202,8 @@ def ssim_heatmap_png(
     return buf.getvalue()
 
 
-def ssim_legend_svg(low: float = 0.5, *, width: int = 240) -> str:
-    """A small SVG colour key for the overlay: SSIM 1 (left, clear) to ``low`` (right, strongest).
+def ssim_legend_svg(low: float = 0.5, *, high: float = 1.0, width: int = 240) -> str:
+    """A small SVG colour key for the overlay: SSIM ``high`` (left, clear) to ``low`` (right, strongest).
 
     The bar is drawn over a light checkerboard so that transparency reads as transparency. No ids,
     no ``<style>``, no scripts; sizes scale with the ``viewBox``.
@@ -204,16 +221,17 @@ def ssim_legend_svg(low: float = 0.5, *, width: int = 240) -> str:
         A standalone ``<svg>`` element.
     """
     low = _check_low(low)
+    high = _check_high(high, low)
     if isinstance(width, bool) or not isinstance(width, int) or not 140 <= width <= 800:
         raise ValueError(f"width must be an integer from 140 to 800, got {width!r}")
     height = 46
     pad = 14
     bar_x, bar_y, bar_w, bar_h = pad, 18, width - 2 * pad, 12
     steps = 40
-    mid = (1.0 + low) / 2.0
-    low_txt, mid_txt = f"{low:.2f}", f"{mid:.2f}"
+    mid = (high + low) / 2.0
+    low_txt, mid_txt, high_txt = f"{low:.2f}", f"{mid:.2f}", f"{high:.2f}"
     label = (
-        f"Heat-map key: clear at SSIM 1.00, strongest and darkest at SSIM {low_txt} or lower"
+        f"Heat-map key: clear at SSIM {high_txt} or higher, strongest and darkest at SSIM {low_txt} or lower"
     )
     parts = [
         f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {width} {height}" width="{width}" '
@@ -237,8 +255,8 @@ def ssim_legend_svg(low: float = 0.5, *, width: int = 240) -> str:
     checks.append("</g>")
     parts.append(f'<rect x="{bar_x}" y="{bar_y}" width="{bar_w}" height="{bar_h}" fill="#ffffff"/>')
     parts.extend(checks)
-    ssim_steps = 1.0 - (np.arange(steps) + 0.5) / steps * (1.0 - low)
-    colours = heat_rgba(ssim_steps.reshape(1, -1), low=low)[0]
+    ssim_steps = high - (np.arange(steps) + 0.5) / steps * (high - low)
+    colours = heat_rgba(ssim_steps.reshape(1, -1), low=low, high=high)[0]
     sw = bar_w / steps
     parts.append('<g class="hm-key-bar">')
     for i, (r, g, b, a) in enumerate(colours.tolist()):
@@ -252,9 +270,10 @@ def ssim_legend_svg(low: float = 0.5, *, width: int = 240) -> str:
         f'<rect x="{bar_x}" y="{bar_y}" width="{bar_w}" height="{bar_h}" fill="none" stroke="#8a939c" '
         f'stroke-width="0.8"/>'
     )
-    ends = ((1.0, "1.00", "start"), (mid, mid_txt, "middle"), (low, f"\u2264 {low_txt}", "end"))
+    first = high_txt if high >= 1.0 else f"\u2265 {high_txt}"
+    ends = ((high, first, "start"), (mid, mid_txt, "middle"), (low, f"\u2264 {low_txt}", "end"))
     for value, text, anchor in ends:
-        x = bar_x + (1.0 - value) / (1.0 - low) * bar_w
+        x = bar_x + (high - value) / (high - low) * bar_w
         parts.append(
             f'<text class="hm-key-tick" x="{x:.2f}" y="{bar_y + bar_h + 12}" text-anchor="{anchor}" '
             f'data-value="{value!r}" fill="#5e6670">{text}</text>'

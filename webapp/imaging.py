@@ -19,16 +19,23 @@ DEFAULT_HEAT_LOW = 0.5
 HEAT_MAX_ALPHA = 176  # about 70 %: the designer still sees the pixels under the strongest colour
 
 
-def heat_low(target_ssim) -> float:
-    """The SSIM at which the heat-map reaches full strength, for a class target.
+def heat_scale(ssim_map_values: np.ndarray, target_ssim) -> tuple[float, float]:
+    """The heat-map's (high, low) for one image: clear at SSIM >= high, full colour at <= low.
 
-    ``1 - 3 * (1 - target)`` (0.95 -> 0.85, 0.97 -> 0.91) puts the target a third of the way along
-    the colour ramp, so the overlay shows where an image is near or below its class's bar instead of
-    fading out for every setting good enough to ship; without a target the ramp runs down to 0.5.
+    Fixed scales paint textured images red all over, because SSIM punishes smoothed grain
+    everywhere. So the scale follows the image: colour starts below the class target or below the
+    image's own median SSIM, whichever is lower (at most half the picture is coloured), and is full
+    at the image's 1st percentile (at least 0.1 below ``high``). Rounded to 0.01 so the key reads
+    cleanly and cached renders are shared.
     """
-    if target_ssim is None:
-        return DEFAULT_HEAT_LOW
-    return round(min(0.98, max(DEFAULT_HEAT_LOW, 3.0 * float(target_ssim) - 2.0)), 4)
+    values = np.clip(np.asarray(ssim_map_values, dtype=np.float64), -1.0, 1.0)
+    target = 0.95 if target_ssim is None else float(target_ssim)
+    high = min(target, float(np.median(values)))
+    low = min(high - 0.1, float(np.percentile(values, 1.0)))
+    high, low = round(high, 2), round(max(-1.0, low), 2)
+    if high - low < 0.1:
+        low = round(high - 0.1, 2)
+    return high, max(-1.0, low)
 
 
 def _setting_key(setting: dict) -> str:
@@ -92,7 +99,7 @@ def ssim_map(root, sha: str, width, setting: dict) -> np.ndarray:
     return np.load(io.BytesIO(data), allow_pickle=False)
 
 
-def heat_png_from_map(ssim_map_values: np.ndarray, *, low: float = DEFAULT_HEAT_LOW) -> bytes:
+def heat_png_from_map(ssim_map_values: np.ndarray, *, low: float = DEFAULT_HEAT_LOW, high: float = 1.0) -> bytes:
     """The heat-map PNG of an SSIM map, after clipping it to [-1, 1].
 
     SSIM cannot exceed 1, but a float32 map of flat areas can come out a hair above it (1.0001 seen
@@ -101,13 +108,16 @@ def heat_png_from_map(ssim_map_values: np.ndarray, *, low: float = DEFAULT_HEAT_
     from webapp.heatmap import ssim_heatmap_png
 
     return ssim_heatmap_png(np.clip(np.asarray(ssim_map_values, dtype=np.float32), -1.0, 1.0), low=low,
-                            max_alpha=HEAT_MAX_ALPHA)
+                            high=high, max_alpha=HEAT_MAX_ALPHA)
 
 
-def heatmap_png(root, sha: str, width, setting: dict, *, low: float = DEFAULT_HEAT_LOW) -> bytes:
+def heatmap_png(root, sha: str, width, setting: dict, *, target_ssim=None) -> bytes:
+    """The heat-map overlay at ``setting``, on this image's own scale (:func:`heat_scale`)."""
+    values = ssim_map(root, sha, width, setting)
+    high, low = heat_scale(values, target_ssim)
     return store.cached_render(
-        root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat{low:.4f}a{HEAT_MAX_ALPHA}.png",
-        lambda: heat_png_from_map(ssim_map(root, sha, width, setting), low=low),
+        root, sha, f"{_width_key(width)}-{_setting_key(setting)}-heat{high:.2f}-{low:.2f}a{HEAT_MAX_ALPHA}.png",
+        lambda: heat_png_from_map(values, low=low, high=high),
     )
 
 
@@ -122,6 +132,26 @@ def worst_crops(root, sha: str, width, setting: dict, *, count: int = 3, size: i
         ]).encode()
 
     key = f"{_width_key(width)}-{_setting_key(setting)}-worst{count}x{size}.json"
+    return json.loads(store.cached_render(root, sha, key, make))
+
+
+def damage_spot(root, sha: str, width, setting: dict, check: str, *, size: int = 96) -> dict | None:
+    """Where a visible-damage check (``dct.damage``: "edge" or "blocking") is worst at ``setting``."""
+    from dct.color import rgb_to_ycbcr
+    from dct.damage import EdgeReference
+    from dct.simulate import simulate
+
+    def make():
+        px = pixels(root, sha, width)
+        sim = simulate(px, setting["quality"], setting["subsampling"], setting["cutoff"])
+        luma = (lambda a: a.astype(np.float32)) if px.ndim == 2 else (lambda a: rgb_to_ycbcr(a)[0])
+        spot = EdgeReference(luma(px)).worst_spot(luma(sim.reconstructed), sim.ssim_map, check, size=size)
+        if spot is None:
+            return b"null"
+        return json.dumps({"top": spot.top, "left": spot.left, "height": spot.height, "width": spot.width,
+                           "ssim": spot.value, "check": check}).encode()
+
+    key = f"{_width_key(width)}-{_setting_key(setting)}-damage-{check}{size}.json"
     return json.loads(store.cached_render(root, sha, key, make))
 
 

@@ -36,10 +36,11 @@ COLUMNS = [  # (sort key, heading, title)
     ("mean_kb", "Mean KB", "mean estimated size per image at the chosen setting (1 KB = 1000 bytes)"),
     ("total_kb", "Total KB", "estimated size of the whole class at the chosen setting"),
     ("bpp", "bpp", "bits per pixel at the chosen setting"),
-    ("share", "Meeting", "share of images that pass every check (SSIM target, chroma floor, local floor)"),
+    ("share", "Meeting", "share of images that pass every check (SSIM target, chroma floor, visible damage at edges "
+     "and in smooth areas, local floor when set)"),
     ("worst", "Worst SSIM", "lowest SSIM in the class at the chosen setting"),
-    ("savings", "Saved", "KB saved over the whole class against the current default, and the share of its bytes "
-     "(negative: costs more, because the default fails this class's checks)"),
+    ("savings", "vs today", "what the chosen setting saves over the whole class against the current default, "
+     "and the change in bytes (it costs more where the default fails this class's checks)"),
 ]
 
 
@@ -68,24 +69,13 @@ def sorted_rows(document: dict, sort: str, direction: str):
 
 
 def totals(document: dict) -> dict:
-    """Bytes at the chosen settings against the current default, over the classes that have a setting.
+    """Bytes at the chosen settings against the current default, every class counted
+    (``dct.report.totals``: a class with no qualifying setting keeps the default and saves nothing)."""
+    from dct.report import totals as document_totals
 
-    A class with no qualifying setting is left out of both sides (and listed), so it cannot make the
-    saving look bigger than it is.
-    """
-    entries = document.get("classes", [])
-    decided = [e for e in entries if e.get("setting")]
-    chosen = sum(e.get("estimated_bytes") or 0 for e in decided)
-    current = sum(e.get("current_bytes") or 0 for e in decided)
-    return {
-        "chosen_bytes": chosen,
-        "current_bytes": current,
-        "saved_bytes": current - chosen,
-        "savings": (1 - chosen / current) if current else None,
-        "images": sum(e.get("image_count") or 0 for e in decided),
-        "unmet": sorted({e["name"] for e in entries if not e.get("meets_target", True)}),
-        "undecided": sorted({e["name"] for e in entries if not e.get("setting")}),
-    }
+    out = document_totals(document)
+    out["unmet"] = sorted({e["name"] for e in document.get("classes", []) if not e.get("meets_target", True)})
+    return out
 
 
 def images_of(document: dict, entry: dict):
@@ -120,7 +110,8 @@ def image_failures(entry: dict, image: dict) -> list[str]:
     """Which of the class's checks an image fails at the class's setting (empty: it passes).
 
     Mirrors ``dct.budget.accepts``: luma SSIM against the target, Cb and Cr SSIM against the chroma
-    floor (colour images only), local SSIM against the local floor unless that floor is 0.
+    floor (colour images only), local SSIM against the local floor unless that floor is 0, and the
+    visible-damage checks (``dct.damage``: SSIM next to strong edges, blocking in smooth areas).
     """
     out = []
     target = entry.get("target_ssim")
@@ -133,6 +124,12 @@ def image_failures(entry: dict, image: dict) -> list[str]:
     local = entry.get("local_floor")
     if local and image.get("ssim_local") is not None and image["ssim_local"] < local:
         out.append(f"local < {local:g}")
+    edge = entry.get("edge_floor")
+    if edge and image.get("edge_ssim") is not None and image["edge_ssim"] < edge:
+        out.append(f"edge SSIM {image['edge_ssim']:.3f} < {edge:g} (halos or blur at sharp edges)")
+    limit = entry.get("blocking_limit")
+    if limit and image.get("blocking") is not None and image["blocking"] > limit:
+        out.append(f"blocking {image['blocking']:.2f} > {limit:g} levels (8×8 blocks in smooth areas)")
     return out
 
 
@@ -166,7 +163,11 @@ def _rejections(curves, params, entry, limit):
     targets = budget.Targets(target_ssim=entry["target_ssim"], coverage=entry["coverage"],
                              chroma_floor=entry.get("chroma_floor"),
                              local_floor=entry.get("local_floor") if entry.get("local_floor") is not None
-                             else budget.DEFAULT_LOCAL_FLOOR)
+                             else budget.DEFAULT_LOCAL_FLOOR,
+                             # documents from before the visible-damage check: their curves carry
+                             # neutral values, so the defaults change nothing for them
+                             edge_floor=entry.get("edge_floor", budget.DEFAULT_EDGE_FLOOR),
+                             blocking_limit=entry.get("blocking_limit", budget.DEFAULT_BLOCKING_LIMIT))
     results = [ImageResult.from_dict(d) for d in curves["images"]]
     table = class_tables(results, entry["name"], entry.get("width"))
     if not table:
@@ -176,7 +177,7 @@ def _rejections(curves, params, entry, limit):
 
     def row(setting):
         measures = [table[k][setting] for k in keys]
-        fails = {"ssim": 0, "chroma": 0, "local": 0}
+        fails = {"ssim": 0, "chroma": 0, "local": 0, "damage": 0}
         for m in measures:
             if m.ssim + 1e-12 < targets.target_ssim:
                 fails["ssim"] += 1
@@ -184,6 +185,8 @@ def _rejections(curves, params, entry, limit):
                 fails["chroma"] += 1
             if targets.local_floor > 0 and m.ssim_local + 1e-12 < targets.local_floor:
                 fails["local"] += 1
+            if budget.damage_failures(m, targets):
+                fails["damage"] += 1
         summary = budget.summarize(setting, measures, targets)
         return {"setting": setting.as_dict(), "bytes": summary.total_bytes,
                 "mean_bytes": summary.total_bytes / len(keys), "share": summary.share_accepting,
@@ -210,7 +213,8 @@ def _rejections(curves, params, entry, limit):
     return {
         "cheaper": cheaper[:limit], "cheaper_count": len(cheaper), "current": current,
         "checks": {"ssim": targets.target_ssim, "chroma": targets.effective_chroma_floor,
-                   "local": targets.local_floor, "coverage": targets.coverage, "images": len(keys),
+                   "local": targets.local_floor, "edge": targets.edge_floor,
+                   "blocking": targets.blocking_limit, "coverage": targets.coverage, "images": len(keys),
                    # as dct.budget counts it: at least ceil(coverage * n) images must pass
                    "need": max(1, math.ceil(targets.coverage * len(keys) - 1e-9))},
     }

@@ -61,12 +61,12 @@ def crop_size(shape) -> int:
     return int(min(96, max(16, min(shape[0], shape[1]) // 2)))
 
 
-def heat_legend(low: float):
+def heat_legend(low: float, high: float = 1.0):
     """The heat-map colour key (SVG markup), or None: a missing key must not take the page down."""
     try:
         from webapp.heatmap import ssim_legend_svg
 
-        return Markup(ssim_legend_svg(low, width=260))
+        return Markup(ssim_legend_svg(low, high=high, width=260))
     except Exception:
         log.exception("heat-map key failed")
         return None
@@ -79,21 +79,39 @@ def _page(db, document, set_id, n, url, back_url, back_label):
     # decoding and rendering run in the bounded pool (webapp.decoding), not on this request thread
     shape = decoding.run(lambda: imaging.pixels(root, row["sha256"], width).shape)
     crops = decoding.run(lambda: imaging.worst_crops(root, row["sha256"], width, setting, size=crop_size(shape)))
-    count = len(document.get("images", []))
+    # The pager and "image i of n" stay within the class (and width) under review.
+    images = document.get("images", [])
+    siblings = [i for i, im in enumerate(images) if im["class"] == image["class"] and im.get("width") == width]
+    pos = siblings.index(n)
     fails = results.image_failures(entry, image) if entry else []
-    low = imaging.heat_low((entry or {}).get("target_ssim"))
+    high, low = imaging.heat_scale(imaging.ssim_map(root, row["sha256"], width, setting),
+                                   (entry or {}).get("target_ssim"))
     failed = {key: any(f.startswith(word) for f in fails)
-              for key, word in (("ssim", "SSIM"), ("chroma", "chroma"), ("local", "local"))}
+              for key, word in (("ssim", "SSIM"), ("chroma", "chroma"), ("local", "local"), ("edge", "edge"),
+                                ("blocking", "blocking"))}
+    # Where a visible-damage check fails: its worst window, shown first among the spots.
+    damage_spots = []
+    for check in ("edge", "blocking"):
+        if failed[check]:
+            try:
+                spot = imaging.damage_spot(root, row["sha256"], width, setting, check, size=crop_size(shape))
+            except Exception:
+                log.exception("damage spot for %r failed", image.get("path"))
+                spot = None
+            if spot:
+                damage_spots.append(spot)
     try:  # the file shown in the candidate pane (cached on disk; the pane requests the same bytes)
         real_bytes = len(decoding.run(imaging.candidate_jpeg, root, row["sha256"], width, setting))
     except Exception:
         log.exception("candidate JPEG for %r failed", image.get("path"))
         real_bytes = None
     return render_template(
-        "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=count,
-        px_height=shape[0], px_width=shape[1], crops=crops, fails_text=", ".join(fails), failed=failed,
-        real_bytes=real_bytes, legend=heat_legend(low), heat_low=low, back_url=back_url, back_label=back_label,
-        prev_url=url(n - 1) if n > 0 else None, next_url=url(n + 1) if n + 1 < count else None,
+        "review.html", image=image, entry=entry, setting=setting, fallback=fallback, n=n, count=len(images),
+        px_height=shape[0], px_width=shape[1], crops=damage_spots + crops, damage_spots=damage_spots,
+        fails_text="; ".join(fails), failed=failed, pos=pos, count_in_class=len(siblings),
+        real_bytes=real_bytes, legend=heat_legend(low, high), heat_low=low, heat_high=high, back_url=back_url, back_label=back_label,
+        prev_url=url(siblings[pos - 1]) if pos > 0 else None,
+        next_url=url(siblings[pos + 1]) if pos + 1 < len(siblings) else None,
         asset=lambda kind: url(n, kind),
     )
 
@@ -105,11 +123,13 @@ def _asset(db, document, set_id, n, kind):
         return imaging.png_response(decoding.run(imaging.original_png, root, sha, width))
     if kind == "candidate.jpg":
         return imaging.jpeg_response(decoding.run(imaging.candidate_jpeg, root, sha, width, setting))
-    low = imaging.heat_low((entry or {}).get("target_ssim"))
-    return imaging.png_response(decoding.run(lambda: imaging.heatmap_png(root, sha, width, setting, low=low)))
+    if kind == "thumb.png":  # the budget page's thumbnails, reachable through the share link
+        return imaging.png_response(decoding.run(imaging.thumbnail_png, root, sha))
+    target = (entry or {}).get("target_ssim")
+    return imaging.png_response(decoding.run(lambda: imaging.heatmap_png(root, sha, width, setting, target_ssim=target)))
 
 
-ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png'):kind>"
+ASSETS = "<any('original.png', 'candidate.jpg', 'heat.png', 'thumb.png'):kind>"
 
 
 @bp.get("/sweeps/<sweep_id>/review/<int:n>")

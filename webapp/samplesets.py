@@ -6,7 +6,7 @@ from collections import Counter
 
 from flask import Blueprint, abort, current_app, flash, redirect, render_template, request, url_for
 
-from webapp import decoding, imaging, ingest, store, uploads, validation
+from webapp import decoding, form_check, imaging, ingest, store, uploads, validation
 from webapp.views import is_htmx
 from webapp.worker import get_worker
 
@@ -137,14 +137,28 @@ def file_sizes(images) -> dict:
     return out
 
 
-def render_set(db, row, *, error=None, status=200, form=None):
+def last_params(db, set_id):
+    """The parameters of the set's latest sweep (what the page starts from next time), or None."""
+    for sweep in store.sweeps_for_set(db, set_id):
+        full = store.get_sweep(db, sweep["id"])
+        if full and full.get("params"):
+            return full["params"]  # the targets last chosen, table edits included
+    return None
+
+
+def render_set(db, row, *, error=None, status=200, form=None, errors=()):
     set_id = row["id"]
-    current = form_current(form) if form is not None else dict(validation.DEFAULT_CURRENT)
+    # Remembered: without a posted form the page starts from the last sweep's targets and default.
+    last = last_params(db, set_id) if form is None else None
+    if form is not None:
+        current = form_current(form)
+    else:
+        current = dict((last or {}).get("current") or validation.DEFAULT_CURRENT)
     images = store.set_images(db, set_id)
     return render_template(
         "sampleset.html", s=row, images=images, file_bytes=file_sizes(images), rejected=store.set_rejected(db, set_id),
-        targets=target_rows(db, set_id, form), current=current, sweeps=store.sweeps_for_set(db, set_id),
-        error=error,
+        targets=target_rows(db, set_id, form, params=last), current=current, sweeps=store.sweeps_for_set(db, set_id),
+        error=error, errors=list(errors), invalid={e.field for e in errors},
     ), status
 
 
@@ -163,7 +177,7 @@ def edit_classes(set_id):
     except ValueError as exc:
         if is_htmx():
             return render_template("_partials/class_targets.html", targets=target_rows(db, set_id, request.form),
-                                   error=str(exc)), 400
+                                   targets_error=str(exc)), 400
         return render_set(db, row, error=str(exc), status=400, form=request.form)
     if is_htmx():
         return render_template("_partials/class_targets.html", targets=target_rows(db, set_id, request.form))
@@ -173,6 +187,10 @@ def edit_classes(set_id):
 @bp.post("/sets/<set_id>/sweeps")
 def start_sweep(set_id):
     db, row = load_set(set_id)
+    # Every bad box at once, in plain words, marked on the box itself (webapp.form_check).
+    errors = form_check.check_class_rows(request.form) + form_check.check_current(request.form)
+    if errors:
+        return render_set(db, row, status=400, form=request.form, errors=errors)
     try:
         apply_class_edits(db, set_id, request.form)
         classes = {}
@@ -188,6 +206,19 @@ def start_sweep(set_id):
     sweep_id = store.create_sweep(db, set_id, params)
     get_worker().submit(sweep_id)
     return redirect(url_for("sweeps.show", sweep_id=sweep_id), code=303)
+
+
+@bp.post("/sets/<set_id>/name")
+def rename(set_id):
+    db, row = load_set(set_id)
+    raw = request.form.get("name", "")
+    try:
+        name = form_check.set_name(raw)
+    except ValueError as exc:
+        return render_set(db, row, status=400, errors=[form_check.FieldError("name", str(exc))])
+    store.rename_set(db, set_id, name)
+    flash(f"Renamed the set to “{name}”.")
+    return redirect(url_for("samplesets.show", set_id=set_id), code=303)
 
 
 @bp.post("/sets/<set_id>/delete")

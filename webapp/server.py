@@ -72,7 +72,7 @@ def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: boo
     """
     import os
 
-    from waitress import serve as waitress_serve
+    from waitress import create_server
 
     from webapp.security import allowed_hosts, is_loopback
 
@@ -82,6 +82,12 @@ def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: boo
     if data_dir is not None:
         config["DATA_DIR"] = str(data_dir)
     app = create_app(config)
+    try:
+        # Bind before anything else starts, so a busy port fails at once and cleanly.
+        server = create_server(app, host=host, port=port, threads=max(4, int(threads)),
+                               max_request_body_size=app.config["MAX_CONTENT_LENGTH"], **WAITRESS_LIMITS)
+    except OSError as exc:
+        raise PortBusy(host, port, exc) from None
     base = app.config.get("BASE_URL") or \
         f"http://{'localhost' if host in ('127.0.0.1', '0.0.0.0', '::') else host}:{port}"
     login = "owner login on" if app.config.get("OWNER_PASSWORD_HASH") else "no login"
@@ -95,5 +101,22 @@ def serve(*, host: str = "127.0.0.1", port: int = 8000, data_dir=None, demo: boo
     if not is_loopback(host):
         print(f"Eightfold: answering for the hosts {', '.join(sorted(allowed_hosts(app.config)))} "
               "(add more with EIGHTFOLD_ALLOWED_HOSTS)", file=sys.stderr)
-    waitress_serve(app, host=host, port=port, threads=max(4, int(threads)),
-                   max_request_body_size=app.config["MAX_CONTENT_LENGTH"], **WAITRESS_LIMITS)
+    try:
+        server.run()
+    finally:
+        server.close()
+
+
+class PortBusy(Exception):
+    """The address cannot be listened on (in use, or not this machine's); the message says what to do."""
+
+    def __init__(self, host, port, exc: OSError):
+        import errno
+
+        if exc.errno == errno.EADDRINUSE:
+            why = "the port is already in use (another Eightfold or another server?)"
+        elif exc.errno in (errno.EADDRNOTAVAIL, errno.EACCES):
+            why = exc.strerror or "address not available"
+        else:
+            why = exc.strerror or str(exc)
+        super().__init__(f"cannot listen on {host}:{port}: {why}; choose another with --port")

@@ -246,6 +246,11 @@ def get_set(conn, set_id: str):
     return conn.execute("SELECT * FROM sample_sets WHERE id = ?", (set_id,)).fetchone()
 
 
+def rename_set(conn, set_id: str, name: str) -> None:
+    with conn:
+        conn.execute("UPDATE sample_sets SET name = ? WHERE id = ?", (name, set_id))
+
+
 def list_sets(conn):
     return conn.execute(
         "SELECT s.*, (SELECT COUNT(*) FROM images i WHERE i.set_id = s.id) AS image_count"

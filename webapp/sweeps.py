@@ -7,7 +7,7 @@ import time
 
 from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
-from webapp import results, store, validation
+from webapp import form_check, results, store, validation
 from webapp.views import is_htmx
 from webapp.worker import get_worker
 
@@ -53,7 +53,7 @@ def duration(seconds) -> str:
     return f"{hours} h {m:02d} min"
 
 
-def results_context(sweep: dict, *, sort=None, direction=None, error=None, error_class=None) -> dict:
+def results_context(sweep: dict, *, sort=None, direction=None, error=None, error_class=None, typed=None) -> dict:
     sort, direction = results.check_sort(sort, direction)
     doc = sweep["document"] or {}
     return {
@@ -61,6 +61,8 @@ def results_context(sweep: dict, *, sort=None, direction=None, error=None, error
         "rows": results.sorted_rows(doc, sort, direction), "totals": results.totals(doc),
         "columns": results.COLUMNS, "error": error, "error_class": error_class, "chart": results.chart,
         "saved_bytes": results.saved_bytes,
+        # A refused value stays in its box (marked), instead of silently turning back into the old one.
+        "typed": typed or {},
     }
 
 
@@ -125,10 +127,36 @@ def decide(sweep_id):
     for key in ("target_ssim", "coverage"):
         if key in request.form:
             change[key] = request.form[key]
+    errors = form_check.check_table_change(request.form)
+    if errors:
+        message = " ".join(e.message for e in errors) + " Nothing was changed."
+        typed = {name: {e.field: request.form.get(e.field, "") for e in errors}}
+        return _decide_error(sweep, message, name, sort, direction, 400, typed=typed)
     try:
         params = validation.target_changes({"classes": {name: change}}, sweep["params"])
     except ValueError as exc:
         return _decide_error(sweep, str(exc), name, sort, direction, 400)
+    # Keep the targets the sweep ran with, so a change in the table can always be undone.
+    params["swept"] = sweep["params"].get("swept") or {"classes": sweep["params"]["classes"],
+                                                       "current": sweep["params"]["current"]}
+    return _save_and_show(db, sweep, params, sort, direction)
+
+
+@bp.post("/sweeps/<sweep_id>/restore-targets")
+def restore_targets(sweep_id):
+    """Back to the targets the sweep ran with (undoing every change made in the results table)."""
+    db, sweep = load_sweep(sweep_id)
+    sort, direction = request.form.get("sort"), request.form.get("dir")
+    swept = sweep["params"].get("swept")
+    if sweep["status"] != "done" or not swept:
+        return _decide_error(sweep, "nothing to restore: the targets are the ones the sweep ran with", None, sort,
+                             direction, 409)
+    params = {"classes": swept["classes"], "current": swept["current"], "swept": swept}
+    return _save_and_show(db, sweep, params, sort, direction)
+
+
+def _save_and_show(db, sweep, params, sort, direction):
+    sweep_id = sweep["id"]
     document = redecide(sweep, params)
     store.save_decision(db, sweep_id, params, document)
     sweep = store.get_sweep(db, sweep_id)
@@ -140,8 +168,8 @@ def decide(sweep_id):
     return redirect(url_for("sweeps.show", sweep_id=sweep_id, sort=ctx["sort"], dir=ctx["dir"]), code=303)
 
 
-def _decide_error(sweep, message, name, sort, direction, status):
-    ctx = results_context(sweep, sort=sort, direction=direction, error=message, error_class=name)
+def _decide_error(sweep, message, name, sort, direction, status, typed=None):
+    ctx = results_context(sweep, sort=sort, direction=direction, error=message, error_class=name, typed=typed)
     if is_htmx():
         return render_template("_partials/results_table.html", **ctx), status
     db = store.get_db()

@@ -43,6 +43,13 @@ def kb_signed(value) -> str:
     return ("+" if value > 0 else "\u2212") + text
 
 
+def saving(saved_bytes, savings=None, digits: int = 1) -> str:
+    """"saves 258.7 KB (−34.0 %)" / "costs 63.3 KB more (+209.0 %)" (``dct.report.describe_saving``)."""
+    from dct.report import describe_saving
+
+    return "–" if saved_bytes is None else describe_saving(saved_bytes, savings, digits=digits)
+
+
 def pct(value, digits: int = 0) -> str:
     """A fraction as a percentage; negatives get a real minus sign, like :func:`kb_signed`."""
     if value is None:
@@ -82,7 +89,7 @@ def width_label(w) -> str:
 
 
 def init_app(app) -> None:
-    app.jinja_env.filters.update(kb=kb, kb_signed=kb_signed, pct=pct, ssim=ssim, setting=setting_label,
+    app.jinja_env.filters.update(kb=kb, kb_signed=kb_signed, saving=saving, pct=pct, ssim=ssim, setting=setting_label,
                                   setting_words=setting_words, width=width_label, fromjson=json.loads)
     from dct.budget import DEFAULT_LOCAL_FLOOR
 
