@@ -92,7 +92,7 @@ def test_json_to_stdout_and_cache_reuse(tmp_path):
     root = write_set(tmp_path / "set", flat=1, photo=1)
     cache = tmp_path / "cache"
     first = run(["sweep", str(root), "--json", "-", "--cache-dir", str(cache), *FAST])
-    assert json.loads(first.output)["schema_version"] == 1
+    assert json.loads(first.output)["schema_version"] == report.SCHEMA_VERSION == 2
     second = run(["sweep", str(root), "--cache-dir", str(cache), *FAST])
     assert "0 image passes computed" in second.output
 

@@ -69,7 +69,7 @@ def test_flat_graphics_get_a_different_budget_from_noisy_photos(exhaustive):
 
 def test_document_shape(exhaustive):
     doc = exhaustive.document
-    assert doc["schema_version"] == 1
+    assert doc["schema_version"] == 2
     c = doc["classes"][0]
     for key in ("name", "image_count", "setting", "quant_tables", "estimated_bytes", "coverage_met", "ssim_min", "savings_vs_current"):
         assert key in c
