@@ -121,7 +121,7 @@ def test_database_is_wal_and_versioned(app):
     conn = sqlite3.connect(app.config["DATABASE"])
     try:
         assert conn.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
-        assert conn.execute("PRAGMA user_version").fetchone()[0] == store.SCHEMA_VERSION == 1
+        assert conn.execute("PRAGMA user_version").fetchone()[0] == store.SCHEMA_VERSION == 2
     finally:
         conn.close()
 

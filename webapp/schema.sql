@@ -1,5 +1,5 @@
--- Eightfold store, schema version 1 (PRAGMA user_version). Created on first use; no migrations yet:
--- a future version bumps user_version and adds its own statements.
+-- Eightfold store, schema version 2 (PRAGMA user_version). Created on first use; store.ensure_schema
+-- brings an older data directory up to date (version 2 added signoffs.carried_from).
 
 CREATE TABLE IF NOT EXISTS sample_sets (
     id          TEXT PRIMARY KEY,           -- random, unguessable
@@ -78,6 +78,7 @@ CREATE TABLE IF NOT EXISTS signoffs (
     name        TEXT NOT NULL,
     verdict     TEXT NOT NULL CHECK (verdict IN ('approve', 'needs work')),
     comment     TEXT NOT NULL DEFAULT '',
-    created     TEXT NOT NULL
+    created     TEXT NOT NULL,              -- when it was given (kept when carried over)
+    carried_from TEXT REFERENCES snapshots (view_token) ON DELETE SET NULL  -- set when carried over from an older snapshot
 );
 CREATE INDEX IF NOT EXISTS signoffs_snapshot ON signoffs (view_token);
