@@ -58,7 +58,16 @@ def plain_text(entry: dict) -> str:
     text = f"q{s['quality']} {s['subsampling']}"
     if not fb["extra_bytes"]:
         return f"{text} · same"
-    return f"{text} · +{fb['extra_bytes'] / 1000:,.1f} KB · +{fb['extra_share'] * 100:.1f}%"
+    return f"{text} · +{fb['extra_share'] * 100:.1f}%"
+
+
+def plain_title(entry: dict) -> str:
+    """The column's tooltip: the fallback's extra bytes over the class."""
+    fb = entry.get("plain_fallback")
+    if not fb or not entry.get("setting"):
+        return ""
+    return (f"{fb['extra_bytes'] / 1000:,.1f} KB more over the class than the chosen setting "
+            f"({fb['estimated_bytes'] / 1000:,.1f} KB in all)")
 
 
 def saved_bytes(entry: dict):

@@ -62,7 +62,7 @@ def results_context(sweep: dict, *, sort=None, direction=None, error=None, error
         "sweep": sweep, "doc": doc, "params": sweep["params"], "sort": sort, "dir": direction,
         "rows": results.sorted_rows(doc, sort, direction), "totals": results.totals(doc),
         "columns": results.COLUMNS, "error": error, "error_class": error_class, "chart": results.chart,
-        "saved_bytes": results.saved_bytes, "plain_text": results.plain_text, "choice": sweep["params"].get("choice", validation.CHOICES[0]),
+        "saved_bytes": results.saved_bytes, "plain_text": results.plain_text, "plain_title": results.plain_title, "choice": sweep["params"].get("choice", validation.CHOICES[0]),
         "choice_words": validation.CHOICE_WORDS,
     }
 
