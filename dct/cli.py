@@ -329,12 +329,11 @@ def _check_jobs(b, paths, class_name):
         if class_name is not None:
             cls = class_name
         entries = tuple(b.entries_for(cls))
-        if not entries:
+        why = None
+        if not entries:  # reported once the file is known to be an image (a stray README is only skipped)
             why = (f"class {cls!r} has no setting in this budget" if cls in b.undecided
                    else f"class {cls!r} is not in this budget (it has: {', '.join(b.names()) or 'none'})")
-            rows.append(contract.ImageCheck(path=label, class_name=cls, error=why, reasons=[why]).as_dict())
-            return
-        jobs.append(contract.CheckJob(label, source, cls, background, entries))
+        jobs.append(contract.CheckJob(label, source, cls, background, entries, class_error=why))
 
     for path in paths:
         if path.is_dir():

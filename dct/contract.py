@@ -358,6 +358,7 @@ class CheckJob:
     class_name: str
     background: tuple[int, int, int]
     entries: tuple[ClassBudget, ...]
+    class_error: str | None = None  # the class has no entry in the budget: why (after decoding)
 
 
 @dataclass
@@ -376,6 +377,7 @@ class ImageCheck:
     passes: bool = False
     reasons: list[str] = field(default_factory=list)
     error: str | None = None  # broken file, too small, or a class the budget lacks
+    skipped: bool = False  # not an image and not named like one (a README): listed, not a failure
 
     def as_dict(self) -> dict:
         return {
@@ -383,7 +385,7 @@ class ImageCheck:
             "actual_bytes": self.actual_bytes,
             "ssim": _round(self.ssim), "ssim_cb": _round(self.ssim_cb), "ssim_cr": _round(self.ssim_cr),
             "ssim_local": _round(self.ssim_local), "passes": self.passes, "reasons": list(self.reasons),
-            "error": self.error,
+            "error": self.error, "skipped": self.skipped,
         }  # fmt: skip
 
 
@@ -448,9 +450,23 @@ def run_check_job(job: CheckJob) -> list[dict]:
     try:
         decoded = decode_image(job.source, background=job.background)
     except ImageRejected as exc:
-        return [ImageCheck(path=job.key, class_name=job.class_name, error=str(exc), reasons=[str(exc)]).as_dict()]
+        row = ImageCheck(path=job.key, class_name=job.class_name, error=str(exc), reasons=[str(exc)])
+        # A stray README beside the images is no broken image; a .jpg that does not decode is.
+        row.skipped = str(exc).startswith("not an image file") and not _named_like_an_image(job.key)
+        return [row.as_dict()]
+    if job.class_error is not None:
+        return [ImageCheck(path=job.key, class_name=job.class_name, error=job.class_error,
+                           reasons=[job.class_error]).as_dict()]
     with threadpool_limits(limits=1, user_api="blas"):
         return [check_image(decoded.pixels, e, path=job.key).as_dict() for e in job.entries]
+
+
+IMAGE_SUFFIXES = (".jpg", ".jpeg", ".jpe", ".jfif", ".png", ".gif", ".webp", ".tif", ".tiff", ".bmp", ".avif",
+                  ".heic", ".heif", ".ppm", ".pgm", ".tga")
+
+
+def _named_like_an_image(key: str) -> bool:
+    return key.lower().endswith(IMAGE_SUFFIXES)
 
 
 @dataclass
@@ -490,7 +506,11 @@ class CheckReport:
     @property
     def errors(self) -> list[ImageCheck]:
         """Files that could not be checked: broken, too small, or of a class the budget lacks."""
-        return [i for i in self.images if i.error is not None]
+        return [i for i in self.images if i.error is not None and not i.skipped]
+
+    @property
+    def skipped(self) -> list[ImageCheck]:
+        return [i for i in self.images if i.skipped]
 
     @property
     def usable(self) -> int:
@@ -525,7 +545,8 @@ class CheckReport:
         rows = []
         for i in self.images:
             f = lambda v: "-" if v is None else f"{v:.4f}"
-            result = "ok" if i.passes else ("ERROR: " + i.error if i.error else "FAIL: " + "; ".join(i.reasons))
+            result = "ok" if i.passes else (("skipped: " if i.skipped else "ERROR: ") + i.error if i.error
+                                            else "FAIL: " + "; ".join(i.reasons))
             rows.append([i.path, i.class_name, "as is" if i.width is None else str(i.width), i.setting or "-",
                          "-" if i.actual_bytes is None else f"{i.actual_bytes / 1000:,.1f}",
                          f(i.ssim), f(i.ssim_cb), f(i.ssim_cr), f(i.ssim_local), result])
@@ -541,6 +562,8 @@ class CheckReport:
                        f"({c.share:.0%}); {verdict} its coverage of {c.coverage:.0%}")
         for i in self.errors:
             out.append(f"error: {i.path}: {i.error}")
+        for i in self.skipped:
+            out.append(f"skipped: {i.path}: {i.error}")
         out += [f"note: {n}" for n in self.notes]
         verdict = {EXIT_OK: "PASSED", EXIT_FAILED: "FAILED", EXIT_NOTHING: "NO USABLE IMAGE"}[self.exit_code]
         out.append(f"{verdict}: {self.usable} image check(s) against {self.budget_label}")
@@ -551,13 +574,14 @@ class CheckReport:
 
         An image below the checks is a ``<failure>`` when its class misses its coverage; when the
         class still meets it, the testcase passes and says so in ``<system-out>`` (the exit code
-        and the report agree). Broken files and images of unknown classes are ``<error>``.
+        and the report agree). Broken files and images of unknown classes are ``<error>``; a file
+        that is neither an image nor named like one (a README) is ``<skipped>``.
         """
         suites = ET.Element("testsuites", name="eightfold check")
         groups: dict[str, list] = {}
         for c in self.classes:
             groups.setdefault(c.name, []).append(c)
-        names = list(groups) + sorted({i.class_name for i in self.errors} - set(groups))
+        names = list(groups) + sorted({i.class_name for i in self.errors + self.skipped} - set(groups))
         for name in names:
             suite = ET.SubElement(suites, "testsuite", name=f"eightfold.{name}")
             n_fail = n_err = n = 0
@@ -600,7 +624,15 @@ class CheckReport:
                 n_err += 1
                 case = ET.SubElement(suite, "testcase", classname=f"eightfold.{name}", name=i.path)
                 ET.SubElement(case, "error", message=i.error, type="unusable").text = f"{i.path}: {i.error}"
+            n_skip = 0
+            for i in self.skipped:
+                if i.class_name == name:
+                    n += 1
+                    n_skip += 1
+                    case = ET.SubElement(suite, "testcase", classname=f"eightfold.{name}", name=i.path)
+                    ET.SubElement(case, "skipped", message=i.error)
             suite.set("tests", str(n))
+            suite.set("skipped", str(n_skip))
             suite.set("failures", str(n_fail))
             suite.set("errors", str(n_err))
         ET.indent(suites)
@@ -626,6 +658,8 @@ def summarize_checks(b: Budget, rows: list[dict], *, label: str) -> CheckReport:
                          actual_bytes=r["actual_bytes"], ssim=r["ssim"], ssim_cb=r["ssim_cb"],
                          ssim_cr=r["ssim_cr"], ssim_local=r["ssim_local"], passes=r["passes"],
                          reasons=list(r["reasons"]), error=r["error"]) for r in rows]
+    for i, r in zip(images, rows):
+        i.skipped = bool(r.get("skipped"))
     images.sort(key=lambda i: (i.path, i.width or 0))
     classes = []
     for e in b.classes:
@@ -633,7 +667,7 @@ def summarize_checks(b: Budget, rows: list[dict], *, label: str) -> CheckReport:
         if not mine:
             continue
         at = [i for i in mine if i.width == e.width and i.setting is not None]
-        broken = [i for i in mine if i.setting is None]  # undecodable: fails at every width
+        broken = [i for i in mine if i.setting is None and not i.skipped]  # undecodable: fails at every width
         classes.append(ClassOutcome(e.name, e.width, e.setting.label(), e.targets.coverage,
                                     checked=len(at) + len(broken), passing=sum(1 for i in at if i.passes)))
     return CheckReport(budget_label=label, images=images, classes=classes, notes=list(b.notes))

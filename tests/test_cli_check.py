@@ -205,3 +205,19 @@ def test_sweep_plain_quality_chooses_cutoff_64_only(tmp_path):
     assert doc["choice"] == "plain_quality"
     assert all(c["setting"]["cutoff"] == 64 and c["plain_fallback"]["extra_bytes"] == 0 for c in doc["classes"])
     assert "quality number only" in result.output
+
+
+def test_a_stray_text_file_is_skipped_but_a_broken_jpeg_is_an_error(made, tmp_path):
+    _, budget_file, _ = made
+    root = tmp_path / "new"
+    (root / "flat").mkdir(parents=True)
+    Image.fromarray(flat_graphic(0)).save(root / "flat" / "ok.png")
+    (root / "README.md").write_text("# new images for the autumn range\n")
+    result = run(["check", str(budget_file), str(root), "--workers", "1", "--quiet", "--junit", str(tmp_path / "j.xml")])
+    assert result.exit_code == 0, result.output
+    assert "skipped: " + str(root / "README.md") + ": not an image file" in result.output
+    skipped = [c for c in ET.parse(tmp_path / "j.xml").getroot().iter("testcase") if c.find("skipped") is not None]
+    assert [c.get("name") for c in skipped] == [str(root / "README.md")]
+    (root / "flat" / "bad.jpg").write_text("not a jpeg at all")
+    result = run(["check", str(budget_file), str(root), "--workers", "1", "--quiet"])
+    assert result.exit_code == 1 and "ERROR: not an image file" in result.output
