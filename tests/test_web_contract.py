@@ -35,12 +35,14 @@ def sweep(tmp_path_factory):
              ("hero/b.png", png_bytes(skdata.chelsea()[20:84, 40:120]))]
     r = client.post("/api/sample-sets", data={"files": [(io.BytesIO(d), n) for n, d in files]},
                     content_type="multipart/form-data")
-    sweep_id = client.post(f"/api/sample-sets/{r.get_json()['id']}/sweeps",
+    set_id = r.get_json()["id"]
+    sweep_id = client.post(f"/api/sample-sets/{set_id}/sweeps",
                            json={"target_ssim": 0.9, "coverage": 1.0}).get_json()["id"]
     deadline = time.monotonic() + 120
     while client.get(f"/api/sweeps/{sweep_id}").get_json()["status"] != "done":
         assert time.monotonic() < deadline
         time.sleep(0.05)
+    app.config["TEST_SET_ID"] = set_id  # for starting a second sweep of the same set
     yield app, client, sweep_id
     app.extensions["eightfold_worker"].stop()
 
@@ -160,3 +162,24 @@ def test_a_version_1_data_directory_gains_carried_from(tmp_path):
     cols = [r[1] for r in conn.execute("PRAGMA table_info(signoffs)")]
     assert "carried_from" in cols and conn.execute("PRAGMA user_version").fetchone()[0] == 2
     conn.close()
+
+
+def test_api_choice_on_decide_and_on_start(sweep):
+    app, client, sweep_id = sweep
+    r = client.post(f"/api/sweeps/{sweep_id}/decide", json={"choice": "plain_quality"})
+    assert r.status_code == 200 and r.get_json()["choice"] == "plain_quality"
+    assert all(c["setting"]["cutoff"] == 64 for c in r.get_json()["classes"])
+    r = client.post(f"/api/sweeps/{sweep_id}/decide", json={"choice": "custom"})
+    assert r.status_code == 400
+    assert r.get_json() == {"error": "choice must be one of custom_tables, plain_quality, got 'custom'"}
+    client.post(f"/api/sweeps/{sweep_id}/decide", json={"choice": "custom_tables"})
+    set_id = app.config["TEST_SET_ID"]
+    new = client.post(f"/api/sample-sets/{set_id}/sweeps", json={"choice": "plain_quality", "target_ssim": 0.9, "coverage": 1.0}).get_json()["id"]
+    deadline = time.monotonic() + 120
+    while client.get(f"/api/sweeps/{new}").get_json()["status"] != "done":
+        assert time.monotonic() < deadline
+        time.sleep(0.05)
+    body = client.get(f"/api/sweeps/{new}").get_json()
+    doc = body["result"]
+    assert doc is not None, body
+    assert doc["choice"] == "plain_quality" and all(c["setting"]["cutoff"] == 64 for c in doc["classes"])
