@@ -92,6 +92,8 @@ def test_budget_page_exports_follow_the_choice(sweep):
     view, edit = body["token"], body["edit_url"].rsplit("/", 1)[1]
     doc = client.get(f"/budgets/{view}/document.json").get_json()
     assert doc["choice"] == "plain_quality"
+    for token in (view, edit):  # the API's budget body (document + sign-offs + snapshot facts) too
+        contract.validate_document(client.get(f"/api/budgets/{token}").get_json())
     b = contract.parse_document(doc)
     for token in (view, edit):  # owner and share link alike
         page = client.get(f"/budgets/{token}").get_data(as_text=True)
