@@ -5,6 +5,7 @@ link from an older snapshot to the newest one."""
 from __future__ import annotations
 
 import io
+import json
 import re
 import sqlite3
 import time
@@ -103,7 +104,7 @@ def test_budget_page_exports_follow_the_choice(sweep):
             assert contract.cjpeg_command(e) in page
             assert f'data-copy="kw-{i}"' in page
             kwargs = re.search(rf'id="kw-{i}"[^>]*>([^<]*)</textarea>', page).group(1).replace("&#34;", '"')
-            assert kwargs == contract.json.dumps(contract.pillow_kwargs(e))
+            assert kwargs == json.dumps(contract.pillow_kwargs(e))
             assert e.setting.cutoff == 64
             txt = client.get(f"/budgets/{token}/exports/{i}.txt")
             assert txt.get_data(as_text=True) == contract.cjpeg_tables_text(e)
@@ -185,3 +186,21 @@ def test_api_choice_on_decide_and_on_start(sweep):
     doc = body["result"]
     assert doc is not None, body
     assert doc["choice"] == "plain_quality" and all(c["setting"]["cutoff"] == 64 for c in doc["classes"])
+
+
+def test_eightfold_check_takes_the_web_budget_download(sweep, tmp_path):
+    from click.testing import CliRunner
+
+    from dct.cli import main
+
+    _, client, sweep_id = sweep
+    view = client.post(f"/api/sweeps/{sweep_id}/freeze").get_json()["token"]
+    path = tmp_path / "budget.json"
+    path.write_bytes(client.get(f"/budgets/{view}/document.json").get_data())
+    (tmp_path / "new" / "product").mkdir(parents=True)
+    Image.fromarray(skdata.astronaut()[100:164, 180:260]).save(tmp_path / "new" / "product" / "a.png")
+    r = CliRunner().invoke(main, ["check", str(path), str(tmp_path / "new"), "--workers", "1", "--quiet", "--json", "-"])
+    report = json.loads(r.output)
+    assert r.exit_code == report["exit_code"] in (0, 1)
+    [row] = report["images"]
+    assert row["class"] == "product" and row["error"] is None and row["actual_bytes"] > 0 and row["ssim"] > 0.5
