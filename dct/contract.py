@@ -51,11 +51,17 @@ __all__ = [
     "validate_document",
     "parse_document",
     "load_document",
+    "select",
     "pillow_kwargs",
     "pillow_snippet",
     "cjpeg_tables_text",
+    "cjpeg_args",
     "cjpeg_command",
+    "export_text",
+    "export_entries",
+    "measure_of",
     "check_image",
+    "run_check_job",
     "summarize_checks",
 ]
 

@@ -221,3 +221,20 @@ def test_a_stray_text_file_is_skipped_but_a_broken_jpeg_is_an_error(made, tmp_pa
     (root / "flat" / "bad.jpg").write_text("not a jpeg at all")
     result = run(["check", str(budget_file), str(root), "--workers", "1", "--quiet"])
     assert result.exit_code == 1 and "ERROR: not an image file" in result.output
+
+
+def test_every_delivery_width_is_checked(tmp_path):
+    sample = write_set(tmp_path / "set", flat=2, photo=0)
+    (sample / "photo").rmdir()
+    (sample / "classes.toml").write_text('[defaults]\nwidths = [96, "original"]\n')
+    out = tmp_path / "b.json"
+    assert run(["sweep", str(sample), "--json", str(out), *SWEEP]).exit_code == 0
+    junit = tmp_path / "j.xml"
+    result = run(["check", str(out), str(sample), "--workers", "1", "--quiet", "--junit", str(junit), "--json", "-"])
+    report = json.loads(result.output)
+    assert sorted((r["path"].rsplit("/", 1)[1], r["width"] or 0) for r in report["images"]) == [
+        ("card0.png", 0), ("card0.png", 96), ("card1.png", 0), ("card1.png", 96)]
+    assert sorted(c["width"] or 0 for c in report["classes"]) == [0, 96]
+    names = {c.get("name") for c in ET.parse(junit).getroot().iter("testcase")}
+    assert {"coverage", "coverage @ 96 px"} <= names
+    assert any(n.endswith("card0.png @ 96 px") for n in names)

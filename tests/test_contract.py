@@ -243,3 +243,12 @@ def test_plain_fallback_is_the_cheapest_qualifying_cutoff_64_setting():
         assert d.plain_extra_bytes == cheapest - d.summary.total_bytes >= 0
         only = budget.decide_class(table, t, plain_only=True)
         assert only.summary.total_bytes == cheapest and only.plain_extra_bytes == 0
+
+
+def test_grayscale_images_are_checked_on_luma_alone():
+    gray = noisy_photo(4)[:, :, 0]
+    e = entry_for(Setting(60, 64, "4:2:0"))
+    r = contract.check_image(gray, e, path="g.png")
+    assert r.ssim_cb is None and r.ssim_cr is None and r.ssim is not None
+    # one component, the luma table alone: the bytes dct.io writes for grayscale
+    assert r.actual_bytes == len(dio.encode_jpeg(gray, quality=60, cutoff=64))
