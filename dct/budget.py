@@ -15,6 +15,10 @@ For one class at one delivery width, an image *accepts* a setting when
 The chosen setting has the smallest total estimated bytes over the class among settings that at
 least ``coverage`` of its images accept; ties go to the higher worst-image SSIM, then the higher
 quality. If no setting qualifies, the decision says so (``setting is None``) instead of guessing.
+
+Every decision also names the *plain-quality fallback*: the cheapest qualifying setting with cutoff
+64, i.e. the Annex K tables scaled by a quality factor, which is all that an encoder's quality number
+(plus a subsampling mode) can express. ``plain_only=True`` restricts the choice itself to those.
 """
 
 from __future__ import annotations
@@ -32,6 +36,7 @@ DEFAULT_COVERAGE = 0.9
 DEFAULT_LOCAL_FLOOR = 0.0
 DEFAULT_EDGE_FLOOR = damage.DEFAULT_EDGE_FLOOR
 DEFAULT_BLOCKING_LIMIT = damage.DEFAULT_BLOCKING_LIMIT
+PLAIN_CUTOFF = 64  # no zigzag cutoff: the standard tables scaled by quality, nothing more
 _EPS = 1e-12
 
 
@@ -106,6 +111,31 @@ def accepts(m: Measure, t: Targets) -> bool:
     return not damage_failures(m, t)
 
 
+def failed_checks(m: Measure, t: Targets) -> list[tuple[str, float, float]]:
+    """The checks of :func:`accepts` that an image fails, as ``(check, value, floor)``, for reports.
+
+    ``check`` is one of "ssim", "ssim_cb", "ssim_cr", "ssim_local", "edge_ssim" (value below its
+    floor) and "blocking" (value above its limit). Empty when every one of these passes;
+    :func:`accepts` stays the rule (a caller reports its verdict, and these as the reasons).
+    """
+    out = []
+    if m.ssim + _EPS < t.target_ssim:
+        out.append(("ssim", m.ssim, t.target_ssim))
+    if m.ssim_cb is not None:
+        floor = t.effective_chroma_floor
+        for name, value in (("ssim_cb", m.ssim_cb), ("ssim_cr", m.ssim_cr)):
+            if value + _EPS < floor:
+                out.append((name, value, floor))
+    if t.local_floor > 0 and m.ssim_local + _EPS < t.local_floor:
+        out.append(("ssim_local", m.ssim_local, t.local_floor))
+    failed = damage_failures(m, t)
+    if "edge" in failed:
+        out.append(("edge_ssim", m.edge_ssim, t.edge_floor))
+    if "blocking" in failed:
+        out.append(("blocking", m.blocking, t.blocking_limit))
+    return out
+
+
 def slack(m: Measure, t: Targets) -> float:
     """How far an image is from accepting (>= 0: it accepts); the smallest margin over the checks."""
     margins = [m.ssim - t.target_ssim]
@@ -146,12 +176,29 @@ class Decision:
     best_share: SettingSummary | None  # the setting closest to qualifying, when none does
     image_count: int
     per_image: dict[str, Measure] = field(default_factory=dict)  # at the chosen setting
+    plain: SettingSummary | None = None  # the cheapest qualifying cutoff-64 setting (the fallback)
+    plain_only: bool = False  # the choice was restricted to cutoff-64 settings
 
     @property
     def savings_vs_current(self) -> float | None:
         if self.summary is None or self.current is None or self.current.total_bytes == 0:
             return None
         return 1.0 - self.summary.total_bytes / self.current.total_bytes
+
+    @property
+    def plain_extra_bytes(self) -> int | None:
+        """Bytes the plain-quality fallback costs over the chosen setting (0 when they are the same)."""
+        if self.summary is None or self.plain is None:
+            return None
+        return self.plain.total_bytes - self.summary.total_bytes
+
+    @property
+    def plain_extra_share(self) -> float | None:
+        """The fallback's extra bytes as a fraction of the chosen setting's (0.12 = 12 % more)."""
+        extra = self.plain_extra_bytes
+        if extra is None or self.summary.total_bytes == 0:
+            return None
+        return extra / self.summary.total_bytes
 
 
 def _quantile_at_coverage(values: np.ndarray, coverage: float) -> float:
@@ -185,11 +232,23 @@ def pareto_frontier(summaries: list[SettingSummary]) -> list[SettingSummary]:
     return frontier
 
 
+def is_plain(setting: Setting) -> bool:
+    """True for a setting any encoder's quality number reproduces (no zigzag cutoff)."""
+    return setting.cutoff == PLAIN_CUTOFF
+
+
+def _cheapest(qualifying: list[SettingSummary]) -> SettingSummary | None:
+    if not qualifying:
+        return None
+    return min(qualifying, key=lambda s: (s.total_bytes, -s.ssim_min, -s.setting.quality, s.setting))
+
+
 def decide_class(
     table: dict[str, dict[Setting, Measure]],
     targets: Targets,
     *,
     current: Setting | None = None,
+    plain_only: bool = False,
 ) -> Decision:
     """Choose a class's setting from its images' curves.
 
@@ -200,22 +259,23 @@ def decide_class(
     targets : Targets
     current : Setting, optional
         The setting in use today, for the savings figure.
+    plain_only : bool
+        Choose only among cutoff-64 settings (for pipelines that take a quality number, not tables).
     """
     if not table:
         raise ValueError("a class needs at least one image to decide on")
     keys = sorted(table)
     common = set.intersection(*(set(table[k]) for k in keys))
-    summaries = [summarize(s, [table[k][s] for k in keys], targets) for s in sorted(common)]
-    qualifying = [s for s in summaries if s.qualifies]
-    chosen = None
-    if qualifying:
-        chosen = min(qualifying, key=lambda s: (s.total_bytes, -s.ssim_min, -s.setting.quality, s.setting))
+    every = [summarize(s, [table[k][s] for k in keys], targets) for s in sorted(common)]
+    summaries = [s for s in every if is_plain(s.setting)] if plain_only else every
+    chosen = _cheapest([s for s in summaries if s.qualifies])
+    plain = _cheapest([s for s in every if s.qualifies and is_plain(s.setting)])
     best_share = None
     if chosen is None and summaries:
         best_share = max(summaries, key=lambda s: (s.class_slack, -s.total_bytes))
     current_summary = None
     if current is not None and current in common:
-        current_summary = next(s for s in summaries if s.setting == current)
+        current_summary = next(s for s in every if s.setting == current)
     return Decision(
         setting=chosen.setting if chosen else None,
         summary=chosen,
@@ -224,4 +284,6 @@ def decide_class(
         best_share=best_share,
         image_count=len(keys),
         per_image={k: table[k][chosen.setting] for k in keys} if chosen else {},
+        plain=plain,
+        plain_only=plain_only,
     )

@@ -14,8 +14,9 @@ from dataclasses import dataclass, field
 import numpy as np
 from threadpoolctl import threadpool_limits
 
+from . import damage
 from .color import rgb_to_ycbcr
-from .io import ImageRejected, decode_image, encode_jpeg, resize_to_width
+from .io import ImageRejected, decode_image, encode_jpeg, encode_jpeg_tables, resize_to_width
 from .quality import ReferenceStats
 from .simulate import MIN_SIDE, PreparedImage, SweepPoint
 from .tables import Setting
@@ -111,31 +112,58 @@ class VerifyJob:
 def verify_image(job: VerifyJob) -> dict:
     """Actual bytes and SSIM of Pillow's JPEG with the exported tables, per width.
 
-    Returns ``{"key", "widths": [{"width", "actual_bytes", "actual_ssim", "actual_ssim_cb", "actual_ssim_cr"}]}``;
-    SSIM is measured on the luma of the decoded RGB (what a browser shows) and on libjpeg's own
-    chroma planes.
+    Returns ``{"key", "widths": [{"width", "actual_bytes", "actual_ssim", "actual_ssim_cb",
+    "actual_ssim_cr", "actual_ssim_local"}]}`` (see :func:`measure_jpeg`).
     """
-    from PIL import Image  # dct.io owns encoding; decoding back here is the measurement itself
-
     decoded = decode_image(job.source, background=job.background)
     out = []
     for width, setting in job.settings_by_width:
         pixels = resize_to_width(decoded.pixels, width)
         data = encode_jpeg(pixels, quality=setting.quality, cutoff=setting.cutoff, subsampling=setting.subsampling)
-        with Image.open(_io.BytesIO(data)) as im:
-            rgb = np.asarray(im)
-        entry = {"width": width, "actual_bytes": len(data)}
-        if pixels.ndim == 2:
-            entry.update(actual_ssim=ReferenceStats(pixels).compare(rgb).ssim, actual_ssim_cb=None, actual_ssim_cr=None)
-        else:
-            with Image.open(_io.BytesIO(data)) as im:
-                im.draft("YCbCr", im.size)
-                planes = np.asarray(im).astype(np.float32).transpose(2, 0, 1)
-            orig = rgb_to_ycbcr(pixels)
-            entry.update(
-                actual_ssim=ReferenceStats(orig[0]).compare(rgb_to_ycbcr(rgb)[0]).ssim,
-                actual_ssim_cb=ReferenceStats(orig[1]).compare(planes[1]).ssim,
-                actual_ssim_cr=ReferenceStats(orig[2]).compare(planes[2]).ssim,
-            )
-        out.append(entry)
+        out.append({"width": width, "actual_bytes": len(data), **measure_jpeg(pixels, data)})
     return {"key": job.key, "widths": out}
+
+
+def encode_and_measure(pixels: np.ndarray, *, luma, chroma, subsampling: str) -> dict:
+    """Encode with explicit tables (Pillow, optimized Huffman) and measure the real decode.
+
+    Returns ``{"actual_bytes", "actual_ssim", "actual_ssim_cb", "actual_ssim_cr", "actual_ssim_local",
+    "actual_edge_ssim", "actual_blocking"}``.
+    """
+    data = encode_jpeg_tables(pixels, luma=luma, chroma=chroma, subsampling=subsampling)
+    return {"actual_bytes": len(data), **measure_jpeg(pixels, data)}
+
+
+def measure_jpeg(pixels: np.ndarray, data: bytes) -> dict:
+    """SSIM of a real JPEG file against the pixels it was encoded from.
+
+    Luma SSIM (and the local statistic: the low percentile of 16x16-tile SSIM) is measured on the
+    luma of the decoded RGB, which is what a browser shows; Cb and Cr SSIM on libjpeg's own decoded
+    chroma planes (upsampled by libjpeg); the visible-damage statistics (``dct.damage``) on the same
+    luma. Returns ``{"actual_ssim", "actual_ssim_cb", "actual_ssim_cr", "actual_ssim_local",
+    "actual_edge_ssim", "actual_blocking"}``; the chroma values are None for grayscale.
+    """
+    from PIL import Image  # dct.io owns encoding; decoding back here is the measurement itself
+
+    with Image.open(_io.BytesIO(data)) as im:
+        rgb = np.asarray(im)
+    if pixels.ndim == 2:
+        luma = ReferenceStats(pixels).compare(rgb, want_map=True)
+        seen = damage.EdgeReference(pixels).measure(rgb, luma.ssim_map)
+        return {"actual_ssim": luma.ssim, "actual_ssim_cb": None, "actual_ssim_cr": None,
+                "actual_ssim_local": luma.local, "actual_edge_ssim": seen.edge_ssim, "actual_blocking": seen.blocking}
+    with Image.open(_io.BytesIO(data)) as im:
+        im.draft("YCbCr", im.size)
+        planes = np.asarray(im).astype(np.float32).transpose(2, 0, 1)
+    orig = rgb_to_ycbcr(pixels)
+    decoded_luma = rgb_to_ycbcr(rgb)[0]
+    luma = ReferenceStats(orig[0]).compare(decoded_luma, want_map=True)
+    seen = damage.EdgeReference(orig[0]).measure(decoded_luma, luma.ssim_map)
+    return {
+        "actual_ssim": luma.ssim,
+        "actual_ssim_cb": ReferenceStats(orig[1]).compare(planes[1]).ssim,
+        "actual_ssim_cr": ReferenceStats(orig[2]).compare(planes[2]).ssim,
+        "actual_ssim_local": luma.local,
+        "actual_edge_ssim": seen.edge_ssim,
+        "actual_blocking": seen.blocking,
+    }

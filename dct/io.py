@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from PIL import Image, ImageFile, ImageOps, UnidentifiedImageError
 
-from .tables import check_subsampling, quant_tables
+from .tables import check_subsampling, check_table, quant_tables
 
 try:  # LittleCMS ships in Pillow's wheels, but a source build may lack it.
     from PIL import ImageCms
@@ -44,6 +44,7 @@ __all__ = [
     "ImageRejected",
     "decode_image",
     "encode_jpeg",
+    "encode_jpeg_tables",
     "encode_png",
     "resize_to_width",
 ]
@@ -194,9 +195,37 @@ def encode_jpeg(
     bytes
         A baseline JFIF file with no EXIF and no ICC profile.
     """
+    luma, chroma = quant_tables(quality, cutoff)
+    return encode_jpeg_tables(pixels, luma=luma, chroma=chroma, subsampling=subsampling, optimize=optimize)
+
+
+def encode_jpeg_tables(
+    pixels: np.ndarray,
+    *,
+    luma,
+    chroma,
+    subsampling: str = "4:2:0",
+    optimize: bool = True,
+) -> bytes:
+    """Encode with Pillow/libjpeg using explicit quantization tables (a budget's exact tables).
+
+    Parameters
+    ----------
+    pixels : ndarray, shape (H, W, 3) or (H, W), uint8
+    luma, chroma : array-like, shape (8, 8) or (64,), integers 1..255, keyword-only
+        Natural (row-major) order, as ``dct.tables.quant_tables`` returns them. A grayscale image
+        uses the luma table alone.
+    subsampling, optimize : keyword-only
+        As in :func:`encode_jpeg`.
+
+    Notes
+    -----
+    ``quality`` is never passed beside ``qtables``: Pillow would then scale the given tables by it.
+    """
     pixels = _check_pixels(pixels)
     check_subsampling(subsampling)
-    luma, chroma = quant_tables(quality, cutoff)
+    luma = check_table(luma, "luma table")
+    chroma = check_table(chroma, "chroma table")
     img = Image.fromarray(np.ascontiguousarray(pixels))
     buf = io.BytesIO()
     if pixels.ndim == 2:

@@ -128,8 +128,14 @@ def class_tables(results: Iterable[ImageResult], class_name: str, width) -> dict
     return table
 
 
-def plan_refinement(results: dict[str, ImageResult], classes: dict[str, ClassSpec], grid: Grid) -> dict[str, set[Setting]]:
-    """Fine settings to evaluate per class, where the class's decision may lie (see module docstring)."""
+def plan_refinement(results: dict[str, ImageResult], classes: dict[str, ClassSpec], grid: Grid, *,
+                    plain_only: bool = False) -> dict[str, set[Setting]]:
+    """Fine settings to evaluate per class, where the class's decision may lie (see module docstring).
+
+    Cutoff-64 combinations are refined up to the cheapest qualifying cutoff-64 setting, so the
+    plain-quality fallback each decision reports is as fine as the choice; ``plain_only`` refines
+    nothing else.
+    """
     coarse = grid.coarse_qualities()
     fine = grid.sorted_qualities
     plan: dict[str, set[Setting]] = {}
@@ -149,10 +155,15 @@ def plan_refinement(results: dict[str, ImageResult], classes: dict[str, ClassSpe
                         summaries[setting] = budget.summarize(setting, [table[key][setting] for key in keys], targets)
             qualifying = [x.total_bytes for x in summaries.values() if x.qualifies]
             best = min(qualifying) if qualifying else float("inf")
+            plain = [x.total_bytes for x in summaries.values() if x.qualifies and budget.is_plain(x.setting)]
+            best_plain = min(plain) if plain else float("inf")
             for k, s in grid.combos():
+                if plain_only and k != budget.PLAIN_CUTOFF:
+                    continue
+                bound = best_plain if k == budget.PLAIN_CUTOFF else best
                 for qa, qb in zip(coarse, coarse[1:]):
                     a, b = summaries.get(Setting(qa, k, s)), summaries.get(Setting(qb, k, s))
-                    if a is None or b is None or a.total_bytes >= best:
+                    if a is None or b is None or a.total_bytes >= bound:
                         continue
                     if max(a.class_slack, b.class_slack) < -REFINE_MARGIN:
                         continue
@@ -186,6 +197,7 @@ def run_sweep(
     cache: ResultCache | None = None,
     refine: bool = True,
     rejected: Iterable = (),
+    plain_only: bool = False,
 ) -> SweepOutcome:
     """Sweep a sample set and decide every class.
 
@@ -213,6 +225,9 @@ def run_sweep(
         False evaluates only the coarse grid (faster, coarser decisions).
     rejected : iterable of objects with ``path`` and ``error``
         Files refused before the sweep (discovery), listed in the document.
+    plain_only : bool
+        Choose only cutoff-64 settings (``dct.budget.decide_class``); the grid is still evaluated whole,
+        so the document can show what custom tables would save.
     """
     missing = sorted({j.class_name for j in jobs} - set(classes))
     if missing:
@@ -229,7 +244,7 @@ def run_sweep(
         if cancel is not None and cancel.is_set():
             return _cancelled(counters)
         if refine:
-            plan = plan_refinement(results, classes, grid)
+            plan = plan_refinement(results, classes, grid, plain_only=plain_only)
             second = [
                 replace(j, settings=tuple(sorted(plan[j.class_name])))
                 for j in jobs
@@ -252,7 +267,7 @@ def run_sweep(
         "images": [r.as_dict() for r in ordered],
         "rejected": [{"path": r.path, "error": r.error} for r in rejected],
     }
-    document = redecide(curves, classes, current=current)
+    document = redecide(curves, classes, current=current, plain_only=plain_only)
     return SweepOutcome(
         curves=curves,
         document=document,
@@ -267,8 +282,12 @@ def _cancelled(counters) -> SweepOutcome:
     return SweepOutcome(curves={}, document={}, cancelled=True, evaluated=counters["evaluated"], reused=counters["reused"])
 
 
-def redecide(curves: dict, classes: dict[str, ClassSpec], *, current: Setting | None = None) -> dict:
-    """Decide every class again from stored curves (no encoding): the document for these targets."""
+def redecide(curves: dict, classes: dict[str, ClassSpec], *, current: Setting | None = None,
+             plain_only: bool = False) -> dict:
+    """Decide every class again from stored curves (no encoding): the document for these targets.
+
+    ``plain_only`` chooses among cutoff-64 settings only (a pipeline that takes a quality number).
+    """
     if current is None:
         current = Setting.from_dict(curves["current"])
     results = [ImageResult.from_dict(d) for d in curves["images"]]
@@ -279,7 +298,7 @@ def redecide(curves: dict, classes: dict[str, ClassSpec], *, current: Setting | 
             table = class_tables(results, name, width)
             if not table:
                 continue
-            decision = budget.decide_class(table, targets_for(spec), current=current)
+            decision = budget.decide_class(table, targets_for(spec), current=current, plain_only=plain_only)
             decisions.append((spec, width, decision))
     rejected = list(curves.get("rejected", []))
     rejected += [{"path": r.key, "error": r.error} for r in results if r.error is not None]
@@ -289,4 +308,5 @@ def redecide(curves: dict, classes: dict[str, ClassSpec], *, current: Setting | 
         rejected=rejected,
         current=current,
         grid=curves.get("grid"),
+        plain_only=plain_only,
     )

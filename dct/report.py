@@ -1,14 +1,18 @@
-"""The result document (JSON, schema_version 1), its CSV form and the terminal table.
+"""The result document (JSON, schema_version 2), its CSV form and the terminal table.
 
-Document keys (stable; scripts, the web API and exports depend on them)::
+Document keys (stable; scripts, the web API and exports depend on them; the JSON Schema is
+``dct/budget.schema.json``, and ``dct.contract`` loads and validates documents)::
 
     schema_version, generator, created, current{quality,cutoff,subsampling}, grid{...},
+    choice ("custom_tables" | "plain_quality"),
     classes: [{name, width, image_count, target_ssim, coverage, chroma_floor, local_floor,
                edge_floor, blocking_limit,
                setting{quality,cutoff,subsampling} | null, quant_tables{luma,chroma} | null,
                meets_target, coverage_met, share_meeting, estimated_bytes, mean_bytes, bpp,
                ssim_min, ssim_at_coverage, current_bytes, savings_vs_current, chosen_point,
-               current_point, frontier[{quality,cutoff,subsampling,estimated_bytes,ssim,qualifies}], message}],
+               current_point, frontier[{quality,cutoff,subsampling,estimated_bytes,ssim,qualifies}],
+               plain_fallback{setting, quant_tables, estimated_bytes, extra_bytes, extra_share,
+                              ssim_min, share_meeting} | null, message}],
     images: [{path, class, width, pixel_width, pixel_height, setting, estimated_bytes, ssim,
               ssim_cb, ssim_cr, ssim_local, edge_ssim, blocking, damage_fails, meets}],
     rejected: [{path, error}]
@@ -17,6 +21,14 @@ Document keys (stable; scripts, the web API and exports depend on them)::
 luma SSIM that a ``coverage`` share of the class reaches; ``savings_vs_current`` is the fraction
 of the current default's bytes saved (0.31 = 31 % fewer bytes). Quantization tables are 8x8 lists
 in natural row-major order, exactly what an encoder's table option takes.
+
+``choice`` says which settings the decisions chose among: any grid setting ("custom_tables"), or
+cutoff 64 only ("plain_quality": what an encoder's quality number gives). ``plain_fallback`` is the
+cheapest cutoff-64 setting that meets the class's checks, with what it costs over ``setting``
+(``extra_bytes``, and ``extra_share`` = 0.12 for 12 % more); null when none in the grid does.
+
+Version 2 added ``choice`` and ``plain_fallback``; ``dct.contract.load_document`` still reads
+version 1 documents (they chose among custom tables and name no fallback).
 """
 
 from __future__ import annotations
@@ -28,7 +40,8 @@ from datetime import datetime, timezone
 from . import __version__, budget
 from .tables import Setting
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+CHOICES = ("custom_tables", "plain_quality")
 
 
 def _point(summary: budget.SettingSummary | None) -> dict | None:
@@ -42,6 +55,21 @@ def _point(summary: budget.SettingSummary | None) -> dict | None:
 def _tables(setting: Setting) -> dict:
     luma, chroma = setting.tables()
     return {"luma": luma.tolist(), "chroma": chroma.tolist()}
+
+
+def _fallback(decision: budget.Decision) -> dict | None:
+    p = decision.plain
+    if p is None or decision.summary is None:
+        return None
+    return {
+        "setting": p.setting.as_dict(),
+        "quant_tables": _tables(p.setting),
+        "estimated_bytes": p.total_bytes,
+        "extra_bytes": decision.plain_extra_bytes,
+        "extra_share": None if decision.plain_extra_share is None else round(decision.plain_extra_share, 6),
+        "ssim_min": round(p.ssim_min, 6),
+        "share_meeting": round(p.share_accepting, 6),
+    }
 
 
 def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
@@ -74,20 +102,23 @@ def class_entry(spec, width, decision: budget.Decision, pixels: int) -> dict:
         "chosen_point": _point(s),
         "current_point": _point(decision.current),
         "frontier": [_point(f) for f in decision.frontier],
+        "plain_fallback": _fallback(decision),
         "message": None,
     }
     if s is None:
         best = decision.best_share
         closest = f"; closest: {best.setting.label()} with {best.share_accepting:.0%} of images" if best else ""
+        among = " cutoff-64 (quality number only)" if decision.plain_only else ""
         entry["message"] = (
-            f"no setting in the grid reaches SSIM {spec.target_ssim} (chroma floor {chroma_floor}, "
+            f"no{among} setting in the grid reaches SSIM {spec.target_ssim} (chroma floor {chroma_floor}, "
             f"local floor {targets_local}, edge floor {targets.edge_floor}, blocking limit "
             f"{targets.blocking_limit}) for {spec.coverage:.0%} of images{closest}"
         )
     return entry
 
 
-def build_document(*, decisions, results, rejected, current: Setting, grid: dict | None) -> dict:
+def build_document(*, decisions, results, rejected, current: Setting, grid: dict | None,
+                   plain_only: bool = False) -> dict:
     """Assemble the document from per-class decisions and per-image results."""
     by_key = {r.key: r for r in results}
     classes, images = [], []
@@ -132,6 +163,7 @@ def build_document(*, decisions, results, rejected, current: Setting, grid: dict
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "current": current.as_dict(),
         "grid": grid,
+        "choice": CHOICES[1] if plain_only else CHOICES[0],
         "classes": classes,
         "images": images,
         "rejected": sorted(rejected, key=lambda r: r["path"]),
@@ -142,7 +174,8 @@ CSV_COLUMNS = [
     "name", "width", "image_count", "quality", "cutoff", "subsampling", "estimated_bytes", "mean_bytes",
     "bpp", "meets_target", "coverage_met", "share_meeting", "ssim_min", "ssim_at_coverage", "current_bytes",
     "savings_vs_current", "target_ssim", "coverage", "chroma_floor", "local_floor", "quant_table_luma",
-    "quant_table_chroma", "message",
+    "quant_table_chroma", "plain_quality", "plain_subsampling", "plain_estimated_bytes", "plain_extra_bytes",
+    "plain_extra_share", "message",
 ]  # fmt: skip
 
 
@@ -155,6 +188,11 @@ def document_to_csv(doc: dict) -> str:
         row = {k: c.get(k) for k in CSV_COLUMNS if k in c}
         setting = c.get("setting") or {}
         row.update(quality=setting.get("quality"), cutoff=setting.get("cutoff"), subsampling=setting.get("subsampling"))
+        fb = c.get("plain_fallback") or {}
+        row.update(plain_quality=(fb.get("setting") or {}).get("quality"),
+                   plain_subsampling=(fb.get("setting") or {}).get("subsampling"),
+                   plain_estimated_bytes=fb.get("estimated_bytes"), plain_extra_bytes=fb.get("extra_bytes"),
+                   plain_extra_share=fb.get("extra_share"))
         tables = c.get("quant_tables") or {}
         for name in ("luma", "chroma"):
             t = tables.get(name)
@@ -234,12 +272,24 @@ def describe_estimate_error(bytes_error: float) -> str:
     return f"estimate {abs(bytes_error) * 100:.2f} % {side} the real file"
 
 
+def _fallback_text(fb: dict | None) -> str:
+    """The plain-quality column: its setting and what it costs over the chosen setting."""
+    if not fb:
+        return "none meets the checks"
+    setting = f"q{fb['setting']['quality']} {fb['setting']['subsampling']}"
+    if not fb["extra_bytes"]:
+        return f"{setting} (same)"
+    return f"{setting}, {describe_saving(-fb['extra_bytes'], -fb['extra_share'], digits=1)}"
+
+
 def format_table(doc: dict) -> str:
     """A readable terminal table of the class decisions."""
-    head = ["class", "width", "imgs", "setting", "mean KB", "total KB", "bpp", "meeting", "worst SSIM", "vs current default"]
+    head = ["class", "width", "imgs", "setting", "mean KB", "total KB", "bpp", "meeting", "worst SSIM", "vs current default",
+            "quality number only"]
     rows = []
     for c in doc["classes"]:
         s = c["setting"]
+        fb = c.get("plain_fallback")
         rows.append(
             [
                 c["name"],
@@ -253,10 +303,11 @@ def format_table(doc: dict) -> str:
                 "-" if c["ssim_min"] is None else f"{c['ssim_min']:.4f}",
                 "-" if c["savings_vs_current"] is None else describe_saving(
                     c["current_bytes"] - c["estimated_bytes"], c["savings_vs_current"]),
+                _fallback_text(fb) if s else "-",
             ]
         )
     widths = [max(len(r[i]) for r in rows + [head]) for i in range(len(head))]
-    line = lambda r: "  ".join(v.ljust(w) if i in (0, 3) else v.rjust(w) for i, (v, w) in enumerate(zip(r, widths)))
+    line = lambda r: "  ".join(v.ljust(w) if i in (0, 3, 10) else v.rjust(w) for i, (v, w) in enumerate(zip(r, widths))).rstrip()
     out = [line(head), line(["-" * w for w in widths])] + [line(r) for r in rows]
     t = totals(doc)
     if t["savings"] is not None and doc["classes"]:
@@ -268,6 +319,8 @@ def format_table(doc: dict) -> str:
                     f"default (no qualifying setting), counted at {'its' if len(t['undecided']) == 1 else 'their'} current size")
         out.append(f"total: {_kb(t['chosen_bytes'])} KB for {t['images']} image(s) against {_kb(t['current_bytes'])} KB "
                    f"at the current default{label}: {describe_saving(t['saved_bytes'], t['savings'], digits=1)}{kept}")
+    if doc.get("choice") == "plain_quality":
+        out.append("settings chosen among cutoff 64 only (quality number only, --plain-quality)")
     for c in doc["classes"]:
         if c["message"]:
             out.append(f"! {c['name']}: {c['message']}")

@@ -11,6 +11,7 @@ import pytest
 from click.testing import CliRunner
 from PIL import Image
 
+from dct import report
 from dct.cli import EXIT_UNMET, main
 from tests.sets import noisy_photo, write_set
 
@@ -92,7 +93,7 @@ def test_json_to_stdout_and_cache_reuse(tmp_path):
     root = write_set(tmp_path / "set", flat=1, photo=1)
     cache = tmp_path / "cache"
     first = run(["sweep", str(root), "--json", "-", "--cache-dir", str(cache), *FAST])
-    assert json.loads(first.output)["schema_version"] == 1
+    assert json.loads(first.output)["schema_version"] == report.SCHEMA_VERSION == 2
     second = run(["sweep", str(root), "--cache-dir", str(cache), *FAST])
     assert "0 image passes computed" in second.output
 
@@ -131,7 +132,7 @@ def test_decide_again_from_saved_curves(tmp_path):
     broken = tmp_path / "x.json"
     broken.write_text("{}")
     result = CliRunner().invoke(main, ["decide", str(broken)])
-    assert result.exit_code == 1 and "is not a curves file" in result.output
+    assert result.exit_code == 2 and "is not a curves file" in result.output  # a usage error
 
 
 def test_serve_starts_waitress_and_answers(tmp_path):

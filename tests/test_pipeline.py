@@ -69,7 +69,7 @@ def test_flat_graphics_get_a_different_budget_from_noisy_photos(exhaustive):
 
 def test_document_shape(exhaustive):
     doc = exhaustive.document
-    assert doc["schema_version"] == 1
+    assert doc["schema_version"] == 2
     c = doc["classes"][0]
     for key in ("name", "image_count", "setting", "quant_tables", "estimated_bytes", "coverage_met", "ssim_min", "savings_vs_current"):
         assert key in c
@@ -119,3 +119,29 @@ def test_cancel_and_progress(sample):
 def test_unknown_class_is_an_error(sample):
     with pytest.raises(ValueError, match="jobs name classes without a ClassSpec"):
         run_sweep(sample.jobs, {}, grid=GRID, runner=make_runner(workers=1))
+
+
+def fallback(doc):
+    return {(c["name"], c["width"]): c["plain_fallback"] and (c["plain_fallback"]["setting"], c["plain_fallback"]["estimated_bytes"])
+            for c in doc["classes"]}
+
+
+@pytest.mark.parametrize("target", [0.90, 0.96])
+def test_refinement_finds_the_exhaustive_plain_quality_fallback(sample, exhaustive, target):
+    """The cutoff-64 fallback is refined as finely as the choice: equal to the exhaustive search's."""
+    from dct.contract import validate_document
+
+    classes = with_targets(sample.classes, target_ssim=target, coverage=0.6)
+    refined = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1))
+    truth = redecide(exhaustive.curves, classes)
+    assert fallback(refined.document) == fallback(truth)
+    assert any(v is not None for v in fallback(truth).values())
+    plain = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1), plain_only=True)
+    assert chosen(plain.document) == chosen(redecide(exhaustive.curves, classes, plain_only=True))
+    assert plain.document["choice"] == "plain_quality" and refined.document["choice"] == "custom_tables"
+    for c in plain.document["classes"]:
+        assert c["setting"] is None or c["setting"]["cutoff"] == 64
+        if c["setting"]:
+            assert c["plain_fallback"]["extra_bytes"] == 0
+    for doc in (refined.document, truth, plain.document):
+        validate_document(doc)

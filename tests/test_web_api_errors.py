@@ -40,7 +40,7 @@ BAD_SWEEPS = [
     ({"target_ssim": True}, "target_ssim must be a number greater than 0 and at most 1, got True"),
     ({"coverage": 0}, "coverage must be a number greater than 0 and at most 1, got 0"),
     ({"coverage": None}, "coverage must be a number greater than 0 and at most 1, got None"),
-    ({"speed": 3}, "unknown key 'speed' (allowed: classes, coverage, current, target_ssim)"),
+    ({"speed": 3}, "unknown key 'speed' (allowed: choice, classes, coverage, current, target_ssim)"),
     ({"classes": []}, "classes must be an object keyed by class name, got []"),
     ({"classes": {"shoes": {}}}, "unknown class 'shoes' (this set has: product, hero)"),
     ({"classes": {"product": 0.9}}, "classes['product'] must be an object, got 0.9"),

@@ -144,7 +144,7 @@ def test_edit_token_refreezes_a_new_snapshot(budget):
     [
         ({"classes": {"hero": {"width": 100}}}, "widths cannot change without a new sweep; start one from the sample set"),
         ({"classes": {"shoes": {}}}, "unknown class 'shoes' (this set has: product, hero)"),
-        ({"target_ssim": 0.9}, "unknown key 'target_ssim' (allowed: classes, current)"),
+        ({"target_ssim": 0.9}, "unknown key 'target_ssim' (allowed: choice, classes, current)"),
     ],
 )
 def test_bad_target_changes(budget, payload, message):
@@ -198,7 +198,13 @@ def test_downloads_json_and_csv(budget):
     client, _, view, _, _ = budget
     doc = {k: v for k, v in client.get(f"/api/budgets/{view}").get_json().items() if k not in ("signoffs", "budget")}
     r = client.get(f"/budgets/{view}/document.json")
-    assert r.get_json() == doc and r.headers["Content-Disposition"] == 'attachment; filename="eightfold-budget-1.json"'
+    body = r.get_json()
+    # the download is the document plus the snapshot's own facts, and a valid budget document
+    assert body.pop("budget") == {"snapshot": 1, "frozen": client.get(f"/api/budgets/{view}").get_json()["budget"]["frozen"]}
+    assert body == doc and r.headers["Content-Disposition"] == 'attachment; filename="eightfold-budget-1.json"'
+    from dct.contract import parse_document
+
+    parse_document(r.get_json())
     r = client.get(f"/budgets/{view}/document.csv")
     assert r.mimetype == "text/csv" and r.get_data(as_text=True) == document_to_csv(doc)
 

@@ -119,7 +119,7 @@ def test_status_shape_and_progress_counts(swept):
     _, _, _, _, body = swept
     assert set(body) >= {"status", "done", "total", "result"}
     assert body["done"] == body["total"] > 0
-    assert body["result"]["schema_version"] == 1
+    assert body["result"]["schema_version"] == 2
 
 
 def test_same_numbers_as_calling_the_pipeline(swept):

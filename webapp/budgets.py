@@ -2,17 +2,26 @@
 
 A budget has one edit token (the owner's link) and one view token per snapshot (the share link).
 Freezing again makes a new snapshot with a new view token; old snapshots and their sign-offs stay.
+Sign-offs of classes whose settings and targets did not change are carried over to the new snapshot
+(marked so, with their original date); an older snapshot's page links to the newest one.
+
+The page also shows, per class, how to apply the budget: Pillow's ``Image.save`` arguments and the
+cjpeg tables file and command (``dct.contract``, the same exports as ``eightfold export``).
 """
 
 from __future__ import annotations
 
-from flask import Blueprint, abort, redirect, render_template, request, url_for
+import json
+import logging
+
+from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
 
 from webapp import results, snapshots, store, validation
 from webapp.sweeps import document_download, load_sweep, redecide
 from webapp.views import is_htmx
 
 bp = Blueprint("budgets", __name__)
+log = logging.getLogger(__name__)
 
 
 def freeze(db, sweep: dict) -> tuple[str, str]:
@@ -23,10 +32,32 @@ def freeze(db, sweep: dict) -> tuple[str, str]:
 
 
 def refreeze(db, budget: dict, params: dict) -> str:
-    """A new snapshot of the same budget with changed targets, re-decided from the sweep's curves."""
+    """A new snapshot of the same budget with changed targets, re-decided from the sweep's curves.
+
+    Sign-offs of the classes whose settings and targets are unchanged come along from the latest snapshot.
+    """
     sweep = store.get_sweep(db, budget["sweep_id"])
     document = redecide(sweep, params)
-    return store.add_snapshot(db, budget["edit_token"], params, document)
+    found = store.resolve_token(db, budget["edit_token"])
+    view_token = store.add_snapshot(db, budget["edit_token"], params, document)
+    if found is not None:
+        previous = found[1]
+        store.carry_signoffs(db, previous["view_token"], view_token, unchanged_classes(previous["document"], document))
+    return view_token
+
+
+def _decided(document: dict, name: str):
+    """What a sign-off on a class approves: per width, the setting and the targets it was held to."""
+    keys = ("target_ssim", "coverage", "chroma_floor", "local_floor")
+    return sorted(((e.get("width") or 0, e.get("setting") and tuple(sorted(e["setting"].items())),
+                    tuple(e.get(k) for k in keys)) for e in document.get("classes", []) if e["name"] == name),
+                  key=repr)
+
+
+def unchanged_classes(old: dict, new: dict) -> list[str]:
+    """Classes of ``new`` whose settings and targets are the same in ``old`` (at every width)."""
+    before = set(class_names(old))
+    return [n for n in class_names(new) if n in before and _decided(old, n) == _decided(new, n)]
 
 
 def links(edit_token: str, view_token: str) -> dict:
@@ -98,11 +129,60 @@ def page_context(db, role, snapshot, budget, *, error=None, error_class=None, fo
                                                     lambda: worst_images(document, entry)),
         "saved_bytes": results.saved_bytes, "failures": results.image_failures, "why_of": why_of,
     }
+    ctx["exports"], ctx["export_notes"] = exports(document)
+    ctx["choice"] = snapshot["params"].get("choice", validation.CHOICES[0])
+    ctx["choice_words"] = validation.CHOICE_WORDS
+    newer = store.newer_snapshot(db, snapshot)
+    # a share link leads only to the newer share link; the owner's link always shows the latest
+    ctx["newer"] = newer if role == "view" else None
     if role == "edit":
         ctx["snapshots"] = store.list_snapshots(db, budget["edit_token"])
         ctx["share_url"] = url_for("budgets.show", token=snapshot["view_token"], _external=True)
         ctx["edit_url"] = url_for("budgets.show", token=budget["edit_token"], _external=True)
     return ctx
+
+
+def exports(document: dict):
+    """Per class name: [{label, setting, index, kwargs, snippet, tables, command}] and loading notes."""
+    from dct import contract
+
+    try:
+        b = contract.parse_document(document)
+    except contract.BudgetError as exc:  # an explanation must not take the page down
+        log.warning("budget document cannot be exported: %s", exc)
+        return {}, [f"exports unavailable: {exc}"]
+    out: dict = {}
+    for index, e in enumerate(b.classes):
+        out.setdefault(e.name, []).append({
+            "index": index, "label": e.label, "setting": e.setting.label(), "width": e.width,
+            "kwargs": json.dumps(contract.pillow_kwargs(e)),
+            "snippet": contract.pillow_snippet(e),
+            "tables": contract.cjpeg_tables_text(e),
+            "command": contract.cjpeg_command(e),
+        })
+    return out, list(b.notes)
+
+
+@bp.get("/budgets/<token>/exports/<int:index>.<any(txt, py):kind>")
+def export_file(token, index, kind):
+    """One class entry's cjpeg tables file (txt) or Pillow snippet (py), as a download."""
+    from dct import contract
+
+    _, _, snapshot, _ = resolve(token)
+    try:
+        entries = contract.parse_document(snapshot["document"]).classes
+    except contract.BudgetError as exc:
+        abort(409, description=f"this budget cannot be exported: {exc}")
+    if not 0 <= index < len(entries):
+        abort(404, description=f"no class entry {index!r} with a setting in this budget")
+    e = entries[index]
+    body = contract.cjpeg_tables_text(e) if kind == "txt" else contract.pillow_snippet(e)
+    resp = Response(body, mimetype="text/plain")
+    stem = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in e.name)
+    width = "" if e.width is None else f"-{e.width}"
+    name = f"eightfold-qtables-{stem}{width}.txt" if kind == "txt" else f"eightfold-save-{stem}{width}.py"
+    resp.headers["Content-Disposition"] = f'attachment; filename="{name}"'
+    return resp
 
 
 @bp.post("/sweeps/<sweep_id>/freeze")
@@ -160,7 +240,10 @@ def targets_from_form(form, params: dict) -> dict:
         if key.startswith("cls-"):
             i = key[4:]
             classes[form[key]] = {"target_ssim": form.get(f"t-{i}", ""), "coverage": form.get(f"c-{i}", "")}
-    return validation.target_changes({"classes": classes}, params)
+    payload = {"classes": classes}
+    if "choice" in form:
+        payload["choice"] = form["choice"]
+    return validation.target_changes(payload, params)
 
 
 @bp.post("/budgets/<token>/targets")
@@ -179,4 +262,7 @@ def targets(token):
 @bp.get("/budgets/<token>/document.<any(json, csv):kind>")
 def download(token, kind):
     _, _, snapshot, _ = resolve(token)
-    return document_download(snapshot["document"], f"eightfold-budget-{snapshot['seq']}", kind)
+    document = snapshot["document"]
+    if kind == "json":  # the snapshot's own facts travel with it (the budget document's "budget" key)
+        document = dict(document, budget={"snapshot": snapshot["seq"], "frozen": snapshot["created"]})
+    return document_download(document, f"eightfold-budget-{snapshot['seq']}", kind)

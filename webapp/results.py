@@ -22,6 +22,7 @@ SORTS = {
     "share": lambda e: e.get("share_meeting"),
     "worst": lambda e: e.get("ssim_min"),
     "savings": lambda e: e.get("savings_vs_current"),
+    "plain": lambda e: (e.get("plain_fallback") or {}).get("extra_share"),
 }
 COLUMNS = [  # (sort key, heading, title)
     ("class", "Class", "image class (folder)"),
@@ -41,7 +42,33 @@ COLUMNS = [  # (sort key, heading, title)
     ("worst", "Worst SSIM", "lowest SSIM in the class at the chosen setting"),
     ("savings", "vs today", "what the chosen setting saves over the whole class against the current default, "
      "and the change in bytes (it costs more where the default fails this class's checks)"),
+    ("plain", "Quality number only",
+     "the cheapest setting an encoder's quality number gives (standard tables, cutoff 64) that passes the same "
+     "checks, and what it costs over the chosen setting"),
 ]
+
+
+def plain_text(entry: dict) -> str:
+    """The quality-number-only column: its setting and its extra cost over the chosen setting."""
+    fb = entry.get("plain_fallback")
+    if not entry.get("setting"):
+        return "–"
+    if fb is None:
+        return "none passes" if "plain_fallback" in entry else "not in this document"
+    s = fb["setting"]
+    text = f"q{s['quality']} {s['subsampling']}"
+    if not fb["extra_bytes"]:
+        return f"{text} · same"
+    return f"{text} · +{fb['extra_share'] * 100:.1f}%"
+
+
+def plain_title(entry: dict) -> str:
+    """The column's tooltip: the fallback's extra bytes over the class."""
+    fb = entry.get("plain_fallback")
+    if not fb or not entry.get("setting"):
+        return ""
+    return (f"{fb['extra_bytes'] / 1000:,.1f} KB more over the class than the chosen setting "
+            f"({fb['estimated_bytes'] / 1000:,.1f} KB in all)")
 
 
 def saved_bytes(entry: dict):

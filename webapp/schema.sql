@@ -1,5 +1,6 @@
 -- Eightfold store, schema version 2 (PRAGMA user_version). Created on first use; store.ensure_schema
--- runs this file (every statement is IF NOT EXISTS) and then the step from each older version.
+-- runs this file (every statement is IF NOT EXISTS) and then the step from each older version
+-- (version 2 added result_cache.set_id and signoffs.carried_from).
 
 CREATE TABLE IF NOT EXISTS sample_sets (
     id          TEXT PRIMARY KEY,           -- random, unguessable
@@ -89,6 +90,7 @@ CREATE TABLE IF NOT EXISTS signoffs (
     name        TEXT NOT NULL,
     verdict     TEXT NOT NULL CHECK (verdict IN ('approve', 'needs work')),
     comment     TEXT NOT NULL DEFAULT '',
-    created     TEXT NOT NULL
+    created     TEXT NOT NULL,              -- when it was given (kept when carried over)
+    carried_from TEXT REFERENCES snapshots (view_token) ON DELETE SET NULL  -- set when carried over from an older snapshot
 );
 CREATE INDEX IF NOT EXISTS signoffs_snapshot ON signoffs (view_token);

@@ -24,7 +24,7 @@ from pathlib import Path
 
 from flask import current_app, g
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 2  # 2: result rows know their set; sign-offs record the snapshot they were carried over from
 SCHEMA_FILE = Path(__file__).with_name("schema.sql")
 STATUSES = ("queued", "running", "done", "failed", "cancelled")
 VERDICTS = ("approve", "needs work")
@@ -63,11 +63,14 @@ def ensure_schema(conn: sqlite3.Connection) -> None:
             f"data directory holds schema version {version!r}; this Eightfold knows up to {SCHEMA_VERSION}"
         )
     if version < SCHEMA_VERSION:
-        conn.executescript(SCHEMA_FILE.read_text(encoding="utf-8"))
-        # v1 -> v2: result rows learn which set wrote them (CREATE IF NOT EXISTS kept a v1 table as it was)
+        conn.executescript(SCHEMA_FILE.read_text(encoding="utf-8"))  # CREATE ... IF NOT EXISTS: new tables only
+        # v1 -> v2 (CREATE IF NOT EXISTS kept v1 tables as they were): result rows learn which set wrote
+        # them, and sign-offs the snapshot they were carried over from.
         if "set_id" not in {r[1] for r in conn.execute("PRAGMA table_info(result_cache)")}:
             conn.execute("ALTER TABLE result_cache ADD COLUMN set_id TEXT")
         conn.execute("CREATE INDEX IF NOT EXISTS result_cache_set ON result_cache (set_id)")
+        if "carried_from" not in {r[1] for r in conn.execute("PRAGMA table_info(signoffs)")}:
+            conn.execute("ALTER TABLE signoffs ADD COLUMN carried_from TEXT REFERENCES snapshots (view_token) ON DELETE SET NULL")
         conn.execute(f"PRAGMA user_version = {SCHEMA_VERSION}")
         conn.commit()
 
@@ -550,16 +553,46 @@ def add_signoff(conn, view_token: str, *, class_name: str, name: str, verdict: s
             (view_token, class_name, name, verdict, comment, created),
         )
     return {"id": cur.lastrowid, "class": class_name, "name": name, "verdict": verdict, "comment": comment,
-            "created": created}
+            "created": created, "carried_from": None, "carried_from_seq": None}
+
+
+def carry_signoffs(conn, from_view: str, to_view: str, class_names) -> int:
+    """Copy the sign-offs of some classes to a newer snapshot, keeping their dates and where they were given.
+
+    A sign-off already carried keeps pointing at the snapshot it was first given on.
+    """
+    names = list(class_names)
+    if not names:
+        return 0
+    marks = ", ".join("?" for _ in names)
+    with conn:
+        cur = conn.execute(
+            "INSERT INTO signoffs (view_token, class_name, name, verdict, comment, created, carried_from) "
+            f"SELECT ?, class_name, name, verdict, comment, created, COALESCE(carried_from, view_token) "
+            f"FROM signoffs WHERE view_token = ? AND class_name IN ({marks}) ORDER BY id",
+            (to_view, from_view, *names),
+        )
+    return cur.rowcount
+
+
+def newer_snapshot(conn, snapshot: dict):
+    """The latest snapshot of the same budget when it is newer than ``snapshot`` (else None)."""
+    row = conn.execute(
+        "SELECT view_token, seq, created FROM snapshots WHERE edit_token = ? AND seq > ? ORDER BY seq DESC LIMIT 1",
+        (snapshot["edit_token"], snapshot["seq"]),
+    ).fetchone()
+    return None if row is None else dict(row)
 
 
 def signoffs_for(conn, view_token: str) -> list[dict]:
     rows = conn.execute(
-        "SELECT id, class_name, name, verdict, comment, created FROM signoffs WHERE view_token = ? ORDER BY id",
+        "SELECT s.id, s.class_name, s.name, s.verdict, s.comment, s.created, s.carried_from, o.seq AS carried_from_seq "
+        "FROM signoffs s LEFT JOIN snapshots o ON o.view_token = s.carried_from WHERE s.view_token = ? ORDER BY s.id",
         (view_token,),
     ).fetchall()
     return [
         {"id": r["id"], "class": r["class_name"], "name": r["name"], "verdict": r["verdict"],
-         "comment": r["comment"], "created": r["created"]}
+         "comment": r["comment"], "created": r["created"], "carried_from": r["carried_from"],
+         "carried_from_seq": r["carried_from_seq"]}
         for r in rows
     ]

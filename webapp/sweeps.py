@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import logging
 import time
 
 from flask import Blueprint, Response, abort, redirect, render_template, request, url_for
@@ -12,6 +13,7 @@ from webapp.views import is_htmx
 from webapp.worker import get_worker
 
 bp = Blueprint("sweeps", __name__)
+log = logging.getLogger(__name__)
 
 
 def load_sweep(sweep_id):
@@ -63,6 +65,8 @@ def results_context(sweep: dict, *, sort=None, direction=None, error=None, error
         "saved_bytes": results.saved_bytes,
         # A refused value stays in its box (marked), instead of silently turning back into the old one.
         "typed": typed or {},
+        "plain_text": results.plain_text, "plain_title": results.plain_title,
+        "choice": sweep["params"].get("choice", validation.CHOICES[0]), "choice_words": validation.CHOICE_WORDS,
     }
 
 
@@ -111,7 +115,7 @@ def redecide(sweep: dict, params: dict) -> dict:
     from dct.pipeline import redecide as pipeline_redecide
 
     return pipeline_redecide(sweep["curves"], validation.class_specs(params),
-                             current=validation.current_setting(params))
+                             current=validation.current_setting(params), plain_only=validation.plain_only(params))
 
 
 @bp.post("/sweeps/<sweep_id>/decide")
@@ -168,6 +172,28 @@ def _save_and_show(db, sweep, params, sort, direction):
     return redirect(url_for("sweeps.show", sweep_id=sweep_id, sort=ctx["sort"], dir=ctx["dir"]), code=303)
 
 
+@bp.post("/sweeps/<sweep_id>/choice")
+def choose(sweep_id):
+    """Custom tables or quality number only: re-decide every class among those settings."""
+    db, sweep = load_sweep(sweep_id)
+    sort, direction = request.form.get("sort"), request.form.get("dir")
+    if sweep["status"] != "done":
+        return _decide_error(sweep, f"this sweep is {sweep['status']}; the choice can change once it is done",
+                             None, sort, direction, 409)
+    try:
+        params = validation.target_changes({"choice": request.form.get("choice", "")}, sweep["params"])
+    except ValueError as exc:
+        return _decide_error(sweep, str(exc), None, sort, direction, 400)
+    document = redecide(sweep, params)
+    store.save_decision(db, sweep_id, params, document)
+    sweep = store.get_sweep(db, sweep_id)
+    ctx = results_context(sweep, sort=sort, direction=direction)
+    if is_htmx():
+        return render_template("_partials/results_table.html", **ctx) + render_template(
+            "_partials/charts.html", **ctx, oob=True)
+    return redirect(url_for("sweeps.show", sweep_id=sweep_id, sort=ctx["sort"], dir=ctx["dir"]), code=303)
+
+
 def _decide_error(sweep, message, name, sort, direction, status, typed=None):
     ctx = results_context(sweep, sort=sort, direction=direction, error=message, error_class=name, typed=typed)
     if is_htmx():
@@ -193,6 +219,12 @@ def class_images(sweep_id, index):
 
 def document_download(document: dict, stem: str, kind: str) -> Response:
     if kind == "json":
+        from dct.contract import BudgetError, validate_document
+
+        try:  # what we hand out should be a valid budget document (dct/budget.schema.json)
+            validate_document(document)
+        except BudgetError:
+            log.exception("document for %s breaks the budget schema", stem)
         body, mimetype = json.dumps(document, indent=2), "application/json"
     else:
         from dct.report import document_to_csv

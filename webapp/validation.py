@@ -18,6 +18,10 @@ MAX_WIDTH = 8192
 MAX_NAME = 80
 MAX_COMMENT = 2000
 CLASS_KEYS = ("target_ssim", "coverage", "width", "widths", "local_floor", "chroma_floor")
+# Which settings a sweep's decisions choose among (dct.report.CHOICES): any grid setting, or only
+# cutoff 64, which is all an encoder's quality number can express.
+CHOICES = ("custom_tables", "plain_quality")
+CHOICE_WORDS = {"custom_tables": "custom tables", "plain_quality": "quality number only"}
 
 
 def _blank(value) -> bool:
@@ -164,7 +168,7 @@ def sweep_request(payload, class_names: list[str]) -> dict:
         payload = {}
     if not isinstance(payload, dict):
         raise ValueError(f"request body must be a JSON object, got {payload!r}")
-    allowed = {"target_ssim", "coverage", "classes", "current"}
+    allowed = {"target_ssim", "coverage", "classes", "current", "choice"}
     unknown = sorted(set(payload) - allowed)
     if unknown:
         raise ValueError(f"unknown key {unknown[0]!r} (allowed: {', '.join(sorted(allowed))})")
@@ -183,7 +187,20 @@ def sweep_request(payload, class_names: list[str]) -> dict:
         name: class_entry(name, raw_classes[name], defaults=base) if name in raw_classes else dict(base)
         for name in class_names
     }
-    return {"classes": classes, "current": setting(payload.get("current"))}
+    return {"classes": classes, "current": setting(payload.get("current")),
+            "choice": choice(payload.get("choice", CHOICES[0]))}
+
+
+def choice(value) -> str:
+    """``custom_tables`` or ``plain_quality``."""
+    if value not in CHOICES:
+        raise ValueError(f"choice must be one of {', '.join(CHOICES)}, got {value!r}")
+    return value
+
+
+def plain_only(params: dict) -> bool:
+    """Whether a sweep's (or snapshot's) decisions choose among cutoff-64 settings only."""
+    return params.get("choice") == "plain_quality"  # params from before the choice existed: custom
 
 
 def target_changes(payload, params: dict) -> dict:
@@ -193,9 +210,9 @@ def target_changes(payload, params: dict) -> dict:
     """
     if not isinstance(payload, dict):
         raise ValueError(f"request body must be a JSON object, got {payload!r}")
-    unknown = sorted(set(payload) - {"classes", "current"})
+    unknown = sorted(set(payload) - {"classes", "current", "choice"})
     if unknown:
-        raise ValueError(f"unknown key {unknown[0]!r} (allowed: classes, current)")
+        raise ValueError(f"unknown key {unknown[0]!r} (allowed: choice, classes, current)")
     raw_classes = payload.get("classes")
     if raw_classes is None:
         raw_classes = {}
@@ -210,7 +227,8 @@ def target_changes(payload, params: dict) -> dict:
             raise ValueError("widths cannot change without a new sweep; start one from the sample set")
         new_classes[name] = class_entry(name, raw, defaults=new_classes[name])
     current = setting(payload["current"]) if "current" in payload else params["current"]
-    return {"classes": new_classes, "current": current}
+    picked = choice(payload["choice"]) if "choice" in payload else params.get("choice", CHOICES[0])
+    return {**params, "classes": new_classes, "current": current, "choice": picked}
 
 
 def class_name(value) -> str:

@@ -147,7 +147,7 @@ class SweepWorker:
             jobs = [dataclasses.replace(j, source=Path(j.source).read_bytes()) for j in jobs]
         try:
             kwargs = dict(current=current, runner=runner, progress=progress, on_reused=on_reused, cancel=event,
-                          cache=cache, rejected=rejected)
+                          cache=cache, rejected=rejected, plain_only=validation.plain_only(sweep["params"]))
             if self.grid is not None:
                 kwargs["grid"] = make_grid(self.grid)
             return run_sweep(jobs, classes, **kwargs)
