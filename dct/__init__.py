@@ -8,9 +8,15 @@ The public facade (keep these names stable):
 * :func:`dct_matrix` — the orthonormal DCT-II matrix.
 """
 
-from .simulate import PreparedImage, Simulation, SweepPoint, simulate, sweep
+from . import simulate as _simulate
+from .simulate import PreparedImage, Simulation, SweepPoint
 from .tables import SUBSAMPLINGS, Setting, quant_tables
+from .threads import engine_call
 from .transform import dct_matrix
+
+# The facade limits BLAS and OpenCV to one thread per call (dct.threads): fast in any process.
+simulate = engine_call(_simulate.simulate)
+sweep = engine_call(_simulate.sweep)
 
 __version__ = "0.1.0"
 

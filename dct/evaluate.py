@@ -12,7 +12,6 @@ import io as _io
 from dataclasses import dataclass, field
 
 import numpy as np
-from threadpoolctl import threadpool_limits
 
 from . import damage
 from .color import rgb_to_ycbcr
@@ -20,6 +19,7 @@ from .io import ImageRejected, decode_image, encode_jpeg, encode_jpeg_tables, re
 from .quality import ReferenceStats
 from .simulate import MIN_SIDE, PreparedImage, SweepPoint
 from .tables import Setting
+from .threads import single_threaded
 
 
 @dataclass
@@ -68,9 +68,9 @@ class ImageResult:
 
 def evaluate_image(job) -> ImageResult:
     """Decode, resize and sweep one image job (a ``dct.sampleset.ImageJob``) at ``job.settings``."""
-    # Parallelism comes from running one image per core; multi-threaded BLAS on top of that only
-    # makes the engine's many mid-sized matrix products fight for the same cores.
-    with threadpool_limits(limits=1, user_api="blas"):
+    # Parallelism comes from running one image per core; multi-threaded BLAS or OpenCV on top of
+    # that only makes the engine's many mid-sized operations fight for the same cores.
+    with single_threaded():
         return _evaluate(job)
 
 

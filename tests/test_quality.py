@@ -32,8 +32,10 @@ def test_equals_scikit_image(pair):
     x, y = pair
     ref_mean, ref_map = skimage_ssim(x, y, full=True)
     ours = quality.ssim(x, y, want_map=True)
-    assert abs(ours.ssim - ref_mean) < 1e-4
-    np.testing.assert_allclose(ours.ssim_map, ref_map, atol=1e-3)
+    # Tolerances: the mean within 1e-5 and every map value within 1e-4 of scikit-image 0.26's
+    # float64 result (we filter in float32 through OpenCV).
+    assert abs(ours.ssim - ref_mean) < 1e-5
+    np.testing.assert_allclose(ours.ssim_map, ref_map, atol=1e-4)
 
 
 def test_reference_statistics_are_reused_consistently():
@@ -41,7 +43,7 @@ def test_reference_statistics_are_reused_consistently():
     ref = quality.ReferenceStats(x)
     for sigma in (0.5, 1.5):
         y = ndimage.gaussian_filter(x, sigma)
-        assert abs(ref.compare(y).ssim - skimage_ssim(x, y)) < 1e-4
+        assert abs(ref.compare(y).ssim - skimage_ssim(x, y)) < 1e-5
 
 
 def test_identical_images():
@@ -62,7 +64,8 @@ def test_window_filter_equals_scipy(shape):
     rng = np.random.default_rng(5)
     img = rng.random(shape) * 255
     ref = ndimage.gaussian_filter(img, 1.5, truncate=3.5, mode="reflect")
-    np.testing.assert_allclose(quality.gaussian_filter(img), ref, atol=2e-3)
+    # OpenCV's BORDER_REFLECT repeats the edge sample (d c b a | a b c d), as scipy's "reflect" does.
+    np.testing.assert_allclose(quality.gaussian_filter(img), ref, atol=1e-4)
 
 
 def test_worst_regions_find_planted_damage():
@@ -92,3 +95,31 @@ def test_sampled_map_mean_is_close_to_the_full_mean(pair):
     assert abs(sampled.ssim - skimage_ssim(x, y)) < 1e-3
     with pytest.raises(ValueError, match="the SSIM map needs step=1"):
         quality.ReferenceStats(x, step=2).compare(y, want_map=True)
+
+
+def test_dark_flat_areas_equal_scikit_image():
+    # Near-black flat areas are where SSIM is most sensitive (C1 and C2 dominate): a dark UI card
+    # with light text, decoded with one-level errors on the black, as a JPEG decoder may leave them.
+    rng = np.random.default_rng(3)
+    x = np.zeros((300, 280))
+    x[40:60, 20:260] = 230  # a line of "text"
+    x[120:200, 30:250] = rng.integers(0, 255, (80, 220))  # a photo block
+    y = x.copy()
+    y[x == 0] = rng.integers(0, 2, int((x == 0).sum()))
+    y[120:200, 30:250] = np.clip(y[120:200, 30:250] + rng.normal(0, 6, (80, 220)), 0, 255).round()
+    ref_mean, ref_map = skimage_ssim(x, y, full=True)
+    ours = quality.ssim(x, y, want_map=True)
+    assert abs(ours.ssim - ref_mean) < 1e-5
+    np.testing.assert_allclose(ours.ssim_map, ref_map, atol=1e-4)
+
+
+def test_strips_join_seamlessly():
+    # A plane taller than several strips gives the same map as scikit-image across strip seams.
+    rng = np.random.default_rng(8)
+    x = ndimage.gaussian_filter(rng.random((quality.STRIP * 2 + 37, 90)) * 255, 1.0)
+    y = np.clip(x + rng.normal(0, 4, x.shape), 0, 255)
+    ref_mean, ref_map = skimage_ssim(x, y, full=True)
+    ours = quality.ssim(x, y, want_map=True)
+    assert abs(ours.ssim - ref_mean) < 1e-5
+    np.testing.assert_allclose(ours.ssim_map, ref_map, atol=1e-4)
+    assert ours.tile_means.shape == (-(-x.shape[0] // 16), -(-x.shape[1] // 16))
