@@ -136,19 +136,25 @@ def failed_checks(m: Measure, t: Targets) -> list[tuple[str, float, float]]:
     return out
 
 
-def slack(m: Measure, t: Targets) -> float:
-    """How far an image is from accepting (>= 0: it accepts); the smallest margin over the checks."""
-    margins = [m.ssim - t.target_ssim]
+def margins(m: Measure, t: Targets) -> dict[str, float]:
+    """Each check's margin (>= 0: it passes), by the check's name in :func:`failed_checks`."""
+    out = {"ssim": m.ssim - t.target_ssim}
     if m.ssim_cb is not None:
-        margins += [m.ssim_cb - t.effective_chroma_floor, m.ssim_cr - t.effective_chroma_floor]
+        out["ssim_cb"] = m.ssim_cb - t.effective_chroma_floor
+        out["ssim_cr"] = m.ssim_cr - t.effective_chroma_floor
     if t.local_floor > 0:
-        margins.append(m.ssim_local - t.local_floor)
+        out["ssim_local"] = m.ssim_local - t.local_floor
     if t.edge_floor > 0:
-        margins.append(m.edge_ssim - t.edge_floor)
+        out["edge_ssim"] = m.edge_ssim - t.edge_floor
     if t.blocking_limit > 0:
         # Levels, scaled to SSIM-like units (1 level ~ 0.01) so "closest to qualifying" stays sensible.
-        margins.append((t.blocking_limit - m.blocking) / 100.0)
-    return min(margins)
+        out["blocking"] = (t.blocking_limit - m.blocking) / 100.0
+    return out
+
+
+def slack(m: Measure, t: Targets) -> float:
+    """How far an image is from accepting (>= 0: it accepts); the smallest margin over the checks."""
+    return min(margins(m, t).values())
 
 
 @dataclass

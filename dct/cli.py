@@ -86,14 +86,17 @@ def main():
 @click.option("--qualities", default="20-95", show_default=True, help="Quality grid.")
 @click.option("--cutoffs", default=",".join(map(str, DEFAULT_GRID.cutoffs)), show_default=True, help="Zigzag cutoffs.")
 @click.option("--subsamplings", default=",".join(DEFAULT_GRID.subsamplings), show_default=True, help="Subsampling modes.")
-@click.option("--no-refine", is_flag=True, help="Evaluate only the coarse grid (every 5th quality).")
+@click.option("--strategy", type=click.Choice(["search", "grid"]), default="search", show_default=True,
+              help="search: forecast every setting, evaluate exactly only where each class's decision lies. "
+                   "grid: evaluate the coarse grid on every image, then refine (curves for any later target).")
+@click.option("--no-refine", is_flag=True, help="With --strategy grid: evaluate only the coarse grid (every 5th quality).")
 @click.option("--plain-quality", is_flag=True, help="Choose only cutoff-64 settings: what an encoder's quality number (and a subsampling mode) can give.")
 @click.option("--cache-dir", type=click.Path(file_okay=False, path_type=Path), help=f"Where finished per-image results are kept [default {default_cache_dir()}].")
 @click.option("--no-cache", is_flag=True, help="Do not read or write the result cache.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_quality, current_cutoff, current_subsampling,
           classes_file, json_out, csv_out, curves_out, verify, workers, scheduler, qualities, cutoffs, subsamplings,
-          no_refine, plain_quality, cache_dir, no_cache, quiet):
+          strategy, no_refine, plain_quality, cache_dir, no_cache, quiet):
     """Sweep SAMPLE_DIR (one sub-folder per class) and print each class's cheapest setting."""
     from tqdm import tqdm
 
@@ -132,7 +135,7 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
         runner = make_runner(workers=workers, scheduler=scheduler)
     except (ValueError, RunnerError) as exc:
         raise click.ClickException(str(exc))
-    # The bar counts image passes (the coarse grid, then each refinement), not images.
+    # The bar counts image passes (the forecasts, then each round of exact evaluations), not images.
     bar = tqdm(total=len(sample.jobs), unit="pass", desc="image passes", disable=quiet, file=sys.stderr)
 
     def progress(done, total):
@@ -144,7 +147,7 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
         with runner:
             outcome = run_sweep(sample.jobs, sample.classes, current=current, grid=grid, runner=runner,
                                 progress=progress, cache=cache, refine=not no_refine, rejected=sample.rejected,
-                                plain_only=plain_quality)
+                                plain_only=plain_quality, strategy=strategy)
             bar.close()
             doc = outcome.document
             if verify:
@@ -196,7 +199,8 @@ def decide(curves_file, target_ssim, coverage, chroma_floor, local_floor, plain_
     """Decide again from curves saved by 'eightfold sweep --curves', with new targets (no encoding).
 
     Only the settings the sweep evaluated are candidates: run the sweep again (its cache makes that
-    cheap) for a search refined around the new targets.
+    cheap) for a search around the new targets, or sweep with '--strategy grid' for curves that
+    answer any target.
     """
     from .pipeline import redecide
     from .sampleset import ClassSpec

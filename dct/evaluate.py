@@ -13,10 +13,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import damage
+from . import damage, predict
+from .budget import Targets
 from .color import rgb_to_ycbcr
 from .io import ImageRejected, decode_image, encode_jpeg, encode_jpeg_tables, resize_to_width
 from .quality import ReferenceStats
+from .search import stops_ladder
 from .simulate import MIN_SIDE, PreparedImage, SweepPoint
 from .tables import Setting
 from .threads import single_threaded
@@ -51,19 +53,24 @@ class ImageResult:
     curves: list[WidthCurve] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     error: str | None = None
+    forecasts: dict = field(default_factory=dict)  # {width: dct.search.Forecast as a dict} (search jobs)
 
     def as_dict(self) -> dict:
-        return {
+        d = {
             "key": self.key,
             "class": self.class_name,
             "curves": [c.as_dict() for c in self.curves],
             "warnings": list(self.warnings),
             "error": self.error,
         }
+        if self.forecasts:
+            d["forecasts"] = [{"width": w, "forecast": f} for w, f in self.forecasts.items()]
+        return d
 
     @classmethod
     def from_dict(cls, d: dict) -> "ImageResult":
-        return cls(d["key"], d["class"], [WidthCurve.from_dict(c) for c in d["curves"]], list(d["warnings"]), d["error"])
+        return cls(d["key"], d["class"], [WidthCurve.from_dict(c) for c in d["curves"]], list(d["warnings"]), d["error"],
+                   {f["width"]: f["forecast"] for f in d.get("forecasts", [])})
 
 
 def evaluate_image(job) -> ImageResult:
@@ -75,6 +82,14 @@ def evaluate_image(job) -> ImageResult:
 
 
 def _evaluate(job) -> ImageResult:
+    settings = list(job.settings or ())
+    if not settings:
+        return ImageResult(job.key, job.class_name, error="no settings to evaluate")
+    return _per_width(job, lambda width, prepared: ([prepared.evaluate(s) for s in settings], None))
+
+
+def _per_width(job, work) -> ImageResult:
+    """Decode a job's image once and run ``work(width, prepared) -> (points, forecast)`` per width."""
     result = ImageResult(job.key, job.class_name)
     try:
         decoded = decode_image(job.source, background=job.background)
@@ -82,10 +97,6 @@ def _evaluate(job) -> ImageResult:
         result.error = str(exc)
         return result
     result.warnings.extend(decoded.warnings)
-    settings = list(job.settings or ())
-    if not settings:
-        result.error = "no settings to evaluate"
-        return result
     for width in job.widths:
         pixels = resize_to_width(decoded.pixels, width)
         h, w = pixels.shape[:2]
@@ -93,10 +104,84 @@ def _evaluate(job) -> ImageResult:
             result.error = f"image too small: {w}x{h} pixels; SSIM needs at least {MIN_SIDE}x{MIN_SIDE}"
             result.curves = []
             return result
-        prepared = PreparedImage(pixels)
-        points = [prepared.evaluate(s) for s in settings]
+        points, forecast = work(width, _prepared(job, width, pixels))
         result.curves.append(WidthCurve(width, w, h, points))
+        if forecast is not None:
+            result.forecasts[width] = forecast
     return result
+
+
+# A worker keeps its most recent prepared images: a class search comes back to the same images in
+# rounds, and with one worker (or few images per worker) their transforms are then done once.
+PREPARED_CACHE_PIXELS = 12_000_000
+_prepared_cache: dict = {}
+
+
+def _prepared(job, width, pixels: np.ndarray) -> PreparedImage:
+    source = job.source if isinstance(job.source, str) else hash(job.source)
+    key = (source, width, tuple(job.background))
+    hit = _prepared_cache.pop(key, None)
+    if hit is not None and hit.height == pixels.shape[0] and hit.width == pixels.shape[1]:
+        _prepared_cache[key] = hit  # most recent last
+        return hit
+    prepared = PreparedImage(pixels)
+    size = pixels.shape[0] * pixels.shape[1]
+    if size <= PREPARED_CACHE_PIXELS:
+        _prepared_cache[key] = prepared
+        while sum(p.height * p.width for p in _prepared_cache.values()) > PREPARED_CACHE_PIXELS:
+            _prepared_cache.pop(next(iter(_prepared_cache)))
+    return prepared
+
+
+@dataclass(frozen=True)
+class SearchJob:
+    """One image's share of a class search round (``dct.search``), for every width of its class.
+
+    ``forecast`` asks for the coefficient-domain forecast over ``grid``; ``points`` are settings to
+    evaluate exactly; each ladder is evaluated from its first setting down and stops at the first
+    clear failure against ``targets`` (nothing below it can pass).
+    """
+
+    key: str
+    class_name: str
+    source: str | bytes
+    widths: tuple
+    background: tuple[int, int, int]
+    targets: Targets
+    grid: object = None  # dct.grid.Grid, for the forecast
+    forecast: bool = False
+    points: tuple = ()  # ((width, (Setting, ...)), ...)
+    ladders: tuple = ()  # ((width, ((Setting, ...), ...)), ...)
+
+
+def evaluate_search(job: SearchJob) -> ImageResult:
+    """Run one image's share of a search round; the result's curves hold only the exact points."""
+    with single_threaded():
+        points = dict(job.points)
+        ladders = dict(job.ladders)
+
+        def work(width, prepared: PreparedImage):
+            done: dict[Setting, SweepPoint] = {}
+            for s in points.get(width, ()):
+                done.setdefault(s, prepared.evaluate(s))
+            for ladder in ladders.get(width, ()):
+                for s in ladder:
+                    point = done.get(s) or prepared.evaluate(s)
+                    done[s] = point
+                    if stops_ladder(point_measure(point), job.targets):
+                        break
+            forecast = predict.forecast(prepared, job.grid).as_dict() if job.forecast else None
+            return list(done.values()), forecast
+
+        return _per_width(job, work)
+
+
+def point_measure(point: SweepPoint):
+    """The numbers ``dct.budget`` decides on, from an evaluated point."""
+    from .budget import Measure
+
+    return Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
+                   point.edge_ssim, point.blocking)
 
 
 @dataclass(frozen=True)

@@ -25,7 +25,8 @@ from typing import Callable, Iterable
 from . import budget, report
 from .budget import targets_for
 from .cache import ResultCache, fingerprint
-from .evaluate import ImageResult, evaluate_image
+from .evaluate import ImageResult, SearchJob, evaluate_image, evaluate_search, point_measure
+from .search import ClassSearch, Forecast
 from .grid import DEFAULT_CURRENT, DEFAULT_GRID, Grid
 from .runner import TaskFailed, make_runner
 from .sampleset import ClassSpec, ImageJob
@@ -46,7 +47,17 @@ class SweepOutcome:
     warnings: list[str] = field(default_factory=list)
 
 
-def _job_fingerprint(job: ImageJob) -> str:
+def _job_fingerprint(job) -> str:
+    if isinstance(job, SearchJob):
+        return fingerprint("search", job.source, {
+            "widths": list(job.widths),
+            "background": list(job.background),
+            "targets": [job.targets.target_ssim, job.targets.coverage, job.targets.effective_chroma_floor,
+                        job.targets.local_floor, job.targets.edge_floor, job.targets.blocking_limit],
+            "grid": job.grid.as_dict() if job.forecast else None,
+            "points": [[w, [s.as_dict() for s in ss]] for w, ss in job.points],
+            "ladders": [[w, [[s.as_dict() for s in ladder] for ladder in ls]] for w, ls in job.ladders],
+        })
     return fingerprint(
         "evaluate",
         job.source,
@@ -83,8 +94,8 @@ class _Progress:
             self.callback(self.done, self.total)
 
 
-def _run_jobs(jobs, runner, cache, progress: _Progress, cancel, counters) -> dict[str, ImageResult]:
-    """Evaluate jobs (cache first), keyed by job key."""
+def _run_jobs(jobs, runner, cache, progress: _Progress, cancel, counters, fn=evaluate_image) -> dict[str, ImageResult]:
+    """Evaluate jobs with ``fn`` (cache first), keyed by job key."""
     out: dict[str, ImageResult] = {}
     todo, prints = [], []
     for job in jobs:
@@ -99,7 +110,7 @@ def _run_jobs(jobs, runner, cache, progress: _Progress, cancel, counters) -> dic
             prints.append(fp)
     if not todo:
         return out
-    for index, result in runner.map_unordered(evaluate_image, todo, cancel=cancel):
+    for index, result in runner.map_unordered(fn, todo, cancel=cancel):
         job = todo[index]
         if isinstance(result, TaskFailed):
             result = ImageResult(job.key, job.class_name, error=f"evaluation failed: {result.message}")
@@ -111,11 +122,6 @@ def _run_jobs(jobs, runner, cache, progress: _Progress, cancel, counters) -> dic
     return out
 
 
-def _measure(point) -> budget.Measure:
-    return budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
-                          point.edge_ssim, point.blocking)
-
-
 def class_tables(results: Iterable[ImageResult], class_name: str, width) -> dict[str, dict[Setting, budget.Measure]]:
     """{image key: {Setting: Measure}} for one class at one width, from evaluated results."""
     table = {}
@@ -124,7 +130,7 @@ def class_tables(results: Iterable[ImageResult], class_name: str, width) -> dict
             continue
         for curve in r.curves:
             if curve.width == width:
-                table[r.key] = {p.setting: _measure(p) for p in curve.points}
+                table[r.key] = {p.setting: point_measure(p) for p in curve.points}
     return table
 
 
@@ -198,6 +204,7 @@ def run_sweep(
     refine: bool = True,
     rejected: Iterable = (),
     plain_only: bool = False,
+    strategy: str = "search",
 ) -> SweepOutcome:
     """Sweep a sample set and decide every class.
 
@@ -228,7 +235,14 @@ def run_sweep(
     plain_only : bool
         Choose only cutoff-64 settings (``dct.budget.decide_class``); the grid is still evaluated whole,
         so the document can show what custom tables would save.
+    strategy : {"search", "grid"}
+        "search" (the default) forecasts every setting in the coefficient domain and evaluates exactly
+        only where a class's decision lies (``dct.search``); the curves then hold those points.
+        "grid" evaluates the whole coarse grid on every image and refines (``refine``), for curves
+        that answer any later target.
     """
+    if strategy not in ("search", "grid"):
+        raise ValueError(f"strategy must be 'search' or 'grid', got {strategy!r}")
     missing = sorted({j.class_name for j in jobs} - set(classes))
     if missing:
         raise ValueError(f"jobs name classes without a ClassSpec: {missing!r}")
@@ -238,6 +252,11 @@ def run_sweep(
     tracker = _Progress(progress, on_reused)
     coarse_settings = list(dict.fromkeys(grid.coarse_settings() + [current]))
     try:
+        if strategy == "search":
+            results = _search(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only)
+            if results is None:
+                return _cancelled(counters)
+            return _outcome(jobs, results, classes, current, grid, rejected, plain_only, counters)
         tracker.grow(len(jobs))
         first = [replace(j, settings=tuple(coarse_settings)) for j in jobs]
         results = _run_jobs(first, runner, cache, tracker, cancel, counters)
@@ -259,6 +278,10 @@ def run_sweep(
     finally:
         if own_runner:
             runner.close()
+    return _outcome(jobs, results, classes, current, grid, rejected, plain_only, counters)
+
+
+def _outcome(jobs, results, classes, current, grid, rejected, plain_only, counters) -> SweepOutcome:
     ordered = [results[j.key] for j in sorted(jobs, key=lambda j: j.key)]
     curves = {
         "schema_version": CURVES_SCHEMA,
@@ -276,6 +299,60 @@ def run_sweep(
         settings_evaluated=sum(len(c.points) for r in ordered for c in r.curves),
         warnings=[f"{r.key}: {w}" for r in ordered for w in r.warnings],
     )
+
+
+def _search(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only):
+    """Forecast every image, then run every class's search (``dct.search``) in shared rounds: each
+    round is one job per image that still has something to evaluate. None when cancelled."""
+    by_key = {j.key: j for j in jobs}
+
+    def job_for(j: ImageJob, **kw) -> SearchJob:
+        return SearchJob(j.key, j.class_name, j.source, tuple(j.widths), tuple(j.background),
+                         targets_for(classes[j.class_name]), **kw)
+
+    first = [job_for(j, grid=grid, forecast=True, points=tuple((w, (current,)) for w in j.widths)) for j in jobs]
+    tracker.grow(len(first))
+    results = _run_jobs(first, runner, cache, tracker, cancel, counters, fn=evaluate_search)
+    if cancel is not None and cancel.is_set():
+        return None
+    searches: dict[tuple[str, object], ClassSearch] = {}
+    for name, spec in classes.items():
+        members = [r for r in results.values() if r.class_name == name and r.error is None]
+        for width in spec.widths:
+            forecasts = {r.key: Forecast.from_dict(r.forecasts[width]) for r in members if width in r.forecasts}
+            if not forecasts:
+                continue
+            search = ClassSearch(forecasts, targets_for(spec), grid, plain_only=plain_only)
+            for r in members:
+                for curve in r.curves:
+                    if curve.width == width:
+                        for p in curve.points:
+                            search.add(r.key, p.setting, point_measure(p))
+            searches[(name, width)] = search
+    while True:
+        asked: dict[str, dict] = {}
+        for (name, width), search in searches.items():
+            for key, ladders in search.requests().items():
+                asked.setdefault(key, {})[width] = tuple(ladders)
+        if not asked:
+            break
+        round_jobs = [job_for(by_key[key], ladders=tuple(per_width.items())) for key, per_width in sorted(asked.items())]
+        tracker.grow(len(round_jobs))
+        extra = _run_jobs(round_jobs, runner, cache, tracker, cancel, counters, fn=evaluate_search)
+        if cancel is not None and cancel.is_set():
+            return None
+        for key, r in extra.items():
+            if r.error is not None:
+                continue
+            results[key] = _merge(results[key], r)
+            for curve in r.curves:
+                search = searches.get((r.class_name, curve.width))
+                if search is not None:
+                    for p in curve.points:
+                        search.add(key, p.setting, point_measure(p))
+    for r in results.values():
+        r.forecasts = {}  # working data: the curves hold the exact points only
+    return results
 
 
 def _cancelled(counters) -> SweepOutcome:

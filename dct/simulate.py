@@ -331,6 +331,22 @@ class PreparedImage:
         cb, cr = self._chroma_blocks(check_subsampling(subsampling))
         return (luma, cb, cr)
 
+    def subsampling_ssim(self, subsampling: str) -> tuple[float, float]:
+        """Cb and Cr SSIM of the mode's chroma round trip alone (downsample, upsample; no coding):
+        the ceiling that quantization then lowers. (1.0, 1.0) for 4:4:4."""
+        h, v = SAMPLING_FACTORS[check_subsampling(subsampling)]
+        if h == 1 and v == 1 or self.grayscale:
+            return 1.0, 1.0
+        rows, cols = _ceil_div(self.height, v), _ceil_div(self.width, h)
+        down = _ceil_div(rows, BLOCK)
+        across = _ceil_div(cols, BLOCK)
+        refs = self._chroma_reference()
+        out = []
+        for plane, ref in zip(self._planes[1:], refs):
+            small = color.downsample_component(plane, h, v, down, across)[:rows, :cols]
+            out.append(ref.compare(color.upsample(small, h, v, self.height, self.width)).ssim)
+        return out[0], out[1]
+
     def _luma_reference(self) -> quality.ReferenceStats:
         if self._luma_ref is None:
             self._luma_ref = quality.ReferenceStats(self._planes[0])

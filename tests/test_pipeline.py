@@ -24,7 +24,8 @@ def sample(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def exhaustive(sample):
-    return run_sweep(sample.jobs, sample.classes, grid=EXHAUSTIVE, runner=make_runner(workers=1), refine=False)
+    return run_sweep(sample.jobs, sample.classes, grid=EXHAUSTIVE, runner=make_runner(workers=1), refine=False,
+                     strategy="grid")
 
 
 def with_targets(classes, **kw):
@@ -39,7 +40,7 @@ def chosen(doc):
 @pytest.mark.parametrize("coverage", [0.6, 1.0])
 def test_refinement_finds_the_exhaustive_choice(sample, exhaustive, target, coverage):
     classes = with_targets(sample.classes, target_ssim=target, coverage=coverage)
-    refined = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1))
+    refined = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1), strategy="grid")
     truth = redecide(exhaustive.curves, classes)
     assert chosen(refined.document) == chosen(truth)
     # ...while computing far fewer settings than the full grid.
@@ -132,11 +133,12 @@ def test_refinement_finds_the_exhaustive_plain_quality_fallback(sample, exhausti
     from dct.contract import validate_document
 
     classes = with_targets(sample.classes, target_ssim=target, coverage=0.6)
-    refined = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1))
+    refined = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1), strategy="grid")
     truth = redecide(exhaustive.curves, classes)
     assert fallback(refined.document) == fallback(truth)
     assert any(v is not None for v in fallback(truth).values())
-    plain = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1), plain_only=True)
+    plain = run_sweep(sample.jobs, classes, grid=GRID, runner=make_runner(workers=1), plain_only=True,
+                      strategy="grid")
     assert chosen(plain.document) == chosen(redecide(exhaustive.curves, classes, plain_only=True))
     assert plain.document["choice"] == "plain_quality" and refined.document["choice"] == "custom_tables"
     for c in plain.document["classes"]:

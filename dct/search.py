@@ -1,0 +1,351 @@
+"""The class search: exact evaluations only where they decide, guided by coefficient-domain forecasts.
+
+A class (at one width) chooses, among the grid's settings, the cheapest one that at least ``need``
+of its ``N`` images accept (``dct.budget``). Within one cutoff x subsampling combination ("combo")
+bytes grow with quality, so the combo's best is its lowest qualifying quality ``Q*``, and the class's
+choice is the cheapest of the combos' ``Q*``. This module finds those ``Q*`` with few exact
+evaluations:
+
+* every image's forecast (``dct.predict``, calibrated against the image's exact points: offsets of
+  slack and ratios of bytes, interpolated along quality) says where each combo crosses the targets;
+* a quality *fails* for the class when more than ``N - need`` images fail there exactly, or *clearly*
+  fail at that quality or above: an exact slack below ``-CLEAR_MARGIN`` at quality q means failing at
+  the lower qualities too, down to where the forecast sees a recovery. The forecast's luminance term
+  is exact at every quality (it depends only on the DC step), so it sees the large dips that pure
+  black or white areas cause when the DC step cannot reproduce their level; the small dips left
+  are smaller than the margin;
+* a quality *passes* when ``need`` images accept it exactly; ``Q*`` is the lowest passing quality with
+  every quality below it failing, and it is then evaluated on every image (its total bytes are exact);
+* a combo whose forecast lower bound on bytes (with ``BYTES_TOLERANCE`` and ``PRUNE_MARGIN`` of slack)
+  exceeds the cheapest exact total found so far is never evaluated.
+
+Each round asks for *ladders*: an image's settings from the forecast crossing down to the lowest
+quality whose fate is unknown, which the worker stops at the first clear failure (below it, nothing
+passes); images forecast to accept comfortably are asked only for the top rung. The decision itself is made by
+``dct.budget.decide_class`` on exact points only; tests compare it with an exhaustive search.
+Pure: no I/O, arrays and dicts in and out.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from . import budget
+from .grid import Grid
+from .tables import Setting
+
+CLEAR_MARGIN = 0.004  # exact slack below -this: fails at every lower quality too (dips are smaller)
+PRUNE_MARGIN = 0.03  # forecast slack is trusted to mean failure only this far below the targets
+BYTES_TOLERANCE = 0.08  # forecast bytes are trusted to be within this share of the exact bytes (seen: 5 %)
+DESCEND_MARGIN = 0.015  # ladders go below their top only for images forecast this close to failing
+SEEN_CHECKS = ("ssim", "ssim_cb", "ssim_cr")  # what a forecast predicts; the rest it takes from exact points
+MAX_ROUNDS = 12  # then every remaining quality of an unresolved combo is evaluated exactly
+
+
+@dataclass
+class Forecast:
+    """One image's forecast over a grid at one width (from ``dct.predict.forecast``)."""
+
+    qualities: tuple[int, ...]  # the qualities forecast (the grid's coarse ones); others interpolate
+    cutoffs: tuple[int, ...]
+    subsamplings: tuple[str, ...]
+    luma: np.ndarray  # (nq, nk) forecast luma SSIM
+    chroma: dict  # {subsampling: (cb (nq, nk), cr (nq, nk))}; empty for grayscale
+    bits: dict  # {subsampling: (nq, nk)} forecast entropy-coded bits of the whole image
+    header_bytes: int  # markers and tables, roughly
+    size_qualities: tuple[int, ...] = ()  # where ``bits`` was forecast (default: ``qualities``)
+
+    def as_dict(self) -> dict:
+        return {
+            "qualities": list(self.qualities),
+            "cutoffs": list(self.cutoffs),
+            "subsamplings": list(self.subsamplings),
+            "luma": self.luma.tolist(),
+            "chroma": {s: [cb.tolist(), cr.tolist()] for s, (cb, cr) in self.chroma.items()},
+            "bits": {s: b.tolist() for s, b in self.bits.items()},
+            "header_bytes": self.header_bytes,
+            "size_qualities": list(self.size_qualities),
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Forecast":
+        return cls(
+            tuple(d["qualities"]), tuple(d["cutoffs"]), tuple(d["subsamplings"]), np.asarray(d["luma"]),
+            {s: (np.asarray(v[0]), np.asarray(v[1])) for s, v in d["chroma"].items()},
+            {s: np.asarray(b) for s, b in d["bits"].items()}, int(d["header_bytes"]),
+            tuple(d.get("size_qualities", ())),
+        )
+
+    def column(self, cutoff: int, subsampling: str, qualities) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None, np.ndarray]:
+        """Forecast luma, Cb, Cr SSIM and bytes along ``qualities`` for one combo (interpolated)."""
+        j = self.cutoffs.index(cutoff)
+        qs = np.asarray(qualities, dtype=float)
+        at = np.asarray(self.qualities, dtype=float)
+        luma = np.interp(qs, at, self.luma[:, j])
+        cb = cr = None
+        if self.chroma:
+            cb = np.interp(qs, at, self.chroma[subsampling][0][:, j])
+            cr = np.interp(qs, at, self.chroma[subsampling][1][:, j])
+        size_at = np.asarray(self.size_qualities or self.qualities, dtype=float)
+        size = self.header_bytes + np.interp(qs, size_at, self.bits[subsampling][:, j]) / 8.0
+        return luma, cb, cr, size
+
+
+def forecast_slack(luma, cb, cr, targets: budget.Targets) -> np.ndarray:
+    """The part of ``budget.slack`` a forecast can see: luma target and chroma floor."""
+    out = luma - targets.target_ssim
+    if cb is not None:
+        floor = targets.effective_chroma_floor
+        out = np.minimum(out, np.minimum(cb, cr) - floor)
+    return out
+
+
+def need_count(n: int, coverage: float) -> int:
+    """Images that must accept for a class to qualify (as ``dct.budget`` counts them)."""
+    return max(1, int(math.ceil(coverage * n - 1e-9)))
+
+
+@dataclass
+class ComboState:
+    cutoff: int
+    subsampling: str
+    resolved: bool = False
+    best: int | None = None  # Q*: the lowest qualifying quality (None: none qualifies)
+    pruned: bool = False
+    rounds: int = 0
+
+    @property
+    def combo(self) -> tuple[int, str]:
+        return self.cutoff, self.subsampling
+
+
+@dataclass
+class ClassSearch:
+    """The search for one class at one width; :meth:`requests` and :meth:`add` alternate."""
+
+    forecasts: dict[str, Forecast]  # image key -> forecast
+    targets: budget.Targets
+    grid: Grid
+    plain_only: bool = False
+    known: dict[str, dict[Setting, budget.Measure]] = field(default_factory=dict)
+    combos: dict[tuple[int, str], ComboState] = field(default_factory=dict)
+
+    def __post_init__(self):
+        self.keys = sorted(self.forecasts)
+        self.qualities = np.asarray(self.grid.sorted_qualities)
+        self.need = need_count(len(self.keys), self.targets.coverage)
+        for key in self.keys:
+            self.known.setdefault(key, {})
+        for k, s in self.grid.combos():
+            if self.plain_only and k != budget.PLAIN_CUTOFF:
+                continue
+            self.combos[(k, s)] = ComboState(k, s)
+
+    # -- exact points in ----------------------------------------------------------------
+
+    def add(self, key: str, setting: Setting, measure: budget.Measure) -> None:
+        self.known[key][setting] = measure
+
+    # -- calibrated forecasts -----------------------------------------------------------
+
+    def _calibrated(self, key: str, k: int, s: str) -> tuple[np.ndarray, np.ndarray]:
+        """Forecast slack and bytes of one image along the grid's qualities, corrected by its exact
+        points, each part by the points that share what drives it (offsets and ratios interpolated
+        along quality):
+
+        * luma SSIM by points of the same cutoff (luma does not depend on the subsampling mode);
+        * chroma SSIM by points of the same subsampling mode (otherwise left as forecast);
+        * the checks a forecast cannot see (visible damage, local floor) by points of the same combo;
+        * bytes by the nearest group: same combo, same mode, same cutoff, any.
+        """
+        fc = self.forecasts[key]
+        luma, cb, cr, size = fc.column(k, s, self.qualities)
+        points = self.known[key]
+        t = self.targets
+
+        def group(*tests):
+            for test in tests:
+                chosen = sorted((p for p in points if test(p)), key=lambda p: p.quality)
+                if chosen:
+                    return chosen
+            return []
+
+        def offsets(chosen, value, default=0.0, above=None):
+            """``value(measure, forecast column)`` at the group's points, interpolated along quality
+            (held flat past the ends, or ``above`` past the highest point)."""
+            if not chosen:
+                return default
+            qs = [p.quality for p in chosen]
+            diffs = [value(points[p], fc.column(p.cutoff, p.subsampling, [p.quality])) for p in chosen]
+            return np.interp(self.qualities, qs, diffs, right=above)
+
+        same_combo = lambda p: (p.cutoff, p.subsampling) == (k, s)  # noqa: E731
+        luma = luma + offsets(group(same_combo, lambda p: p.cutoff == k, lambda p: True),
+                              lambda m, col: m.ssim - col[0][0])
+        if cb is not None:
+            chroma_points = group(same_combo, lambda p: p.subsampling == s)
+            cb = cb + offsets(chroma_points, lambda m, col: m.ssim_cb - col[1][0])
+            cr = cr + offsets(chroma_points, lambda m, col: m.ssim_cr - col[2][0])
+        # The other checks' smallest margin, as measured nearby (their own curve, not an offset). They
+        # improve with quality, so above the highest point they are not assumed to bind.
+        unseen = offsets(group(same_combo), lambda m, col: min(
+            [v for name, v in budget.margins(m, t).items() if name not in SEEN_CHECKS], default=1.0),
+            default=1.0, above=1.0)
+        sized = group(same_combo, lambda p: p.subsampling == s, lambda p: p.cutoff == k, lambda p: True)
+        ratio = offsets(sized, lambda m, col: m.estimated_bytes / col[3][0]) if sized else 1.0
+        if sized:
+            size = size * ratio  # offsets() returned exact/forecast ratios here
+        return np.minimum(forecast_slack(luma, cb, cr, t), unseen), size
+
+    def _forecast_matrix(self, combo) -> tuple[np.ndarray, np.ndarray]:
+        k, s = combo
+        pairs = [self._calibrated(key, k, s) for key in self.keys]
+        return np.stack([p[0] for p in pairs]), np.stack([p[1] for p in pairs])
+
+    def _class_curve(self, slack: np.ndarray) -> np.ndarray:
+        """The need-th largest slack at each quality: >= 0 where the class qualifies."""
+        return np.sort(slack, axis=0)[::-1][self.need - 1]
+
+    # -- exact state --------------------------------------------------------------------
+
+    def _state(self, combo) -> tuple[str, int | None]:
+        """("resolved", Q* or None), ("complete", q) when q passes but lacks images, or
+        ("unknown", q) for the lowest quality whose fate is not yet known."""
+        k, s = combo
+        n, need = len(self.keys), self.need
+        qs = self.qualities.tolist()
+        implied: dict[str, set[int]] = {}  # key -> qualities where a clear failure above implies failure
+        per_q = {}  # quality -> (accepting, failing) exact keys
+        for key in self.keys:
+            raw = None
+            for p, m in self.known[key].items():
+                if (p.cutoff, p.subsampling) != combo or p.quality not in qs:
+                    continue
+                ok = budget.accepts(m, self.targets)
+                acc, fail = per_q.setdefault(p.quality, (set(), set()))
+                (acc if ok else fail).add(key)
+                if not ok and budget.slack(m, self.targets) < -CLEAR_MARGIN:
+                    if raw is None:
+                        raw = forecast_slack(*self.forecasts[key].column(k, s, qs)[:3], self.targets)
+                    implied.setdefault(key, set()).update(_failing_below(raw, qs.index(p.quality), qs))
+        for q in qs:
+            acc, fail = per_q.get(q, (set(), set()))
+            failing = fail | {key for key, below in implied.items() if q in below}
+            if len(acc) >= need:
+                if len(acc) + len(fail) == n:
+                    return "resolved", q
+                return "complete", q
+            if len(failing) > n - need:
+                continue
+            return "unknown", q
+        return "resolved", None
+
+    def _exact_total(self, combo, q) -> int:
+        k, s = combo
+        setting = Setting(q, k, s)
+        return sum(self.known[key][setting].estimated_bytes for key in self.keys)
+
+    # -- the next round -----------------------------------------------------------------
+
+    def requests(self) -> dict[str, list[tuple[Setting, ...]]]:
+        """Ladders to evaluate next, per image key (empty: the search is done)."""
+        for state in self.combos.values():
+            if not state.resolved:
+                kind, q = self._state(state.combo)
+                if kind == "resolved":
+                    state.resolved, state.best = True, q
+        best_exact = self._best_exact(plain=False)
+        best_plain = self._best_exact(plain=True)
+        forecast = {}
+        for combo, state in self.combos.items():
+            if state.resolved or state.pruned:
+                continue
+            slack, size = self._forecast_matrix(combo)
+            curve = self._class_curve(slack)
+            low = np.flatnonzero(curve >= -PRUNE_MARGIN)
+            bound = best_plain if combo[0] == budget.PLAIN_CUTOFF else best_exact
+            own = any((p.cutoff, p.subsampling) == combo for points in self.known.values() for p in points)
+            if low.size == 0 and own:
+                state.pruned = True  # forecast, calibrated on its own points, far from qualifying at the top
+                continue
+            floor_bytes = size[:, low[0] if low.size else -1].sum() * (1 - BYTES_TOLERANCE)
+            if bound is not None and floor_bytes > bound:
+                state.pruned = True
+                continue
+            hit = np.flatnonzero(curve >= 0)
+            at = hit[0] if hit.size else len(self.qualities) - 1
+            forecast[combo] = (size[:, at].sum(), slack, at)
+        if not forecast:
+            return {}
+        cheapest = min(v[0] for v in forecast.values())
+        working = {c for c, v in forecast.items() if v[0] <= cheapest * (1 + BYTES_TOLERANCE)}
+        plain = [c for c in forecast if c[0] == budget.PLAIN_CUTOFF]
+        if plain and best_plain is None:
+            working.add(min(plain, key=lambda c: forecast[c][0]))
+        out: dict[str, list[tuple[Setting, ...]]] = {}
+        for combo in sorted(working):
+            state = self.combos[combo]
+            state.rounds += 1
+            for key, ladder in self._ladders(combo, forecast[combo][1], forecast[combo][2], state).items():
+                out.setdefault(key, []).append(ladder)
+        return out
+
+    def _best_exact(self, *, plain: bool) -> int | None:
+        totals = [self._exact_total(c, st.best) for c, st in self.combos.items()
+                  if st.resolved and st.best is not None and (not plain or c[0] == budget.PLAIN_CUTOFF)]
+        return min(totals) if totals else None
+
+    def _ladders(self, combo, slack: np.ndarray, forecast_at: int, state: ComboState) -> dict[str, tuple[Setting, ...]]:
+        k, s = combo
+        qs = self.qualities.tolist()
+        kind, q = self._state(combo)
+        index = qs.index(q)
+        if kind == "complete":
+            return {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in self.known[key]}
+        if state.rounds > MAX_ROUNDS:  # give up guessing: every quality from here up, exactly
+            return {key: tuple(Setting(x, k, s) for x in reversed(qs[index:]) if Setting(x, k, s) not in self.known[key])
+                    for key in self.keys}
+        top = max(index, forecast_at)
+        # Below the top rung only failures can settle a quality: ask the images most likely to fail
+        # there, as many as it takes (more than N - need), and leave the rest.
+        failing_needed = len(self.keys) - self.need + 1
+        rungs: dict[str, list[Setting]] = {key: [Setting(qs[top], k, s)] for key in self.keys}
+        for j in range(top - 1, index - 1, -1):
+            likely = np.argsort(slack[:, j], kind="stable")[:failing_needed]
+            for i in likely.tolist():
+                if slack[i, j] <= DESCEND_MARGIN:
+                    rungs[self.keys[i]].append(Setting(qs[j], k, s))
+        out = {}
+        for key, ladder in rungs.items():
+            ladder = [x for x in ladder if x not in self.known[key]]
+            if ladder:
+                out[key] = tuple(ladder)
+        if not out:  # the forecast rungs are known: step down exactly from the unknown quality
+            out = {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in self.known[key]}
+        return out
+
+    # -- the answer ----------------------------------------------------------------------
+
+    def table(self) -> dict[str, dict[Setting, budget.Measure]]:
+        """Every exact point, for ``dct.budget.decide_class``."""
+        return {key: dict(points) for key, points in self.known.items()}
+
+
+def _failing_below(raw: np.ndarray, index: int, qualities: list[int]) -> list[int]:
+    """Qualities below a clear failure at ``qualities[index]`` that fail too: downwards until the
+    forecast sees a recovery (its slack rising above the failure's by ``CLEAR_MARGIN``), which is
+    how a dip shows (a flat dark area whose mean the DC step cannot reproduce at some qualities)."""
+    out = [qualities[index]]
+    for j in range(index - 1, -1, -1):
+        if raw[j] > raw[index] + CLEAR_MARGIN:
+            break
+        out.append(qualities[j])
+    return out
+
+
+def stops_ladder(measure: budget.Measure, targets: budget.Targets) -> bool:
+    """True when a ladder can stop after this point: a clear failure (nothing below passes)."""
+    return not budget.accepts(measure, targets) and budget.slack(measure, targets) < -CLEAR_MARGIN
