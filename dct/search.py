@@ -211,9 +211,10 @@ class ClassSearch:
 
     # -- exact state --------------------------------------------------------------------
 
-    def _state(self, combo) -> tuple[str, int | None]:
+    def _state(self, combo, limit: int | None = None) -> tuple[str, int | None]:
         """("resolved", Q* or None), ("complete", q) when q passes but lacks images, or
-        ("unknown", q) for the lowest quality whose fate is not yet known."""
+        ("unknown", q) for the lowest quality whose fate is not yet known; with ``limit`` (an index
+        into the qualities), ("failing", None) when every quality up to it fails."""
         k, s = combo
         n, need = len(self.keys), self.need
         qs = self.qualities.tolist()
@@ -231,7 +232,7 @@ class ClassSearch:
                     if raw is None:
                         raw = forecast_slack(*self.forecasts[key].column(k, s, qs)[:3], self.targets)
                     implied.setdefault(key, set()).update(_failing_below(raw, qs.index(p.quality), qs))
-        for q in qs:
+        for q in qs if limit is None else qs[: limit + 1]:
             acc, fail = per_q.get(q, (set(), set()))
             failing = fail | {key for key, below in implied.items() if q in below}
             if len(acc) >= need:
@@ -241,7 +242,7 @@ class ClassSearch:
             if len(failing) > n - need:
                 continue
             return "unknown", q
-        return "resolved", None
+        return ("resolved", None) if limit is None or limit >= len(qs) - 1 else ("failing", None)
 
     def _exact_total(self, combo, q) -> int:
         k, s = combo
@@ -251,7 +252,14 @@ class ClassSearch:
     # -- the next round -----------------------------------------------------------------
 
     def requests(self) -> dict[str, list[tuple[Setting, ...]]]:
-        """Ladders to evaluate next, per image key (empty: the search is done)."""
+        """Ladders to evaluate next, per image key (empty: the search is done).
+
+        Branch and bound over the combos: the cheapest forecast combo is resolved exactly first; then
+        every other combo either cannot beat the cheapest exact total at any quality it could afford
+        (pruned), or has its affordable qualities refuted by a few clear failures of the images most
+        likely to fail, or, forecast to pass there, is resolved exactly too.
+        """
+        top_index = len(self.qualities) - 1
         for state in self.combos.values():
             if not state.resolved:
                 kind, q = self._state(state.combo)
@@ -259,37 +267,52 @@ class ClassSearch:
                     state.resolved, state.best = True, q
         best_exact = self._best_exact(plain=False)
         best_plain = self._best_exact(plain=True)
-        forecast = {}
+        open_combos = {}
         for combo, state in self.combos.items():
             if state.resolved or state.pruned:
                 continue
             slack, size = self._forecast_matrix(combo)
             curve = self._class_curve(slack)
-            low = np.flatnonzero(curve >= -PRUNE_MARGIN)
             bound = best_plain if combo[0] == budget.PLAIN_CUTOFF else best_exact
-            own = any((p.cutoff, p.subsampling) == combo for points in self.known.values() for p in points)
-            if low.size == 0 and own:
-                state.pruned = True  # forecast, calibrated on its own points, far from qualifying at the top
-                continue
-            floor_bytes = size[:, low[0] if low.size else -1].sum() * (1 - BYTES_TOLERANCE)
-            if bound is not None and floor_bytes > bound:
+            limit = top_index
+            if bound is not None:  # only qualities whose bytes could come in under the bound matter
+                affordable = np.flatnonzero(size.sum(axis=0) * (1 - BYTES_TOLERANCE) < bound)
+                if affordable.size == 0:
+                    state.pruned = True
+                    continue
+                limit = int(affordable[-1])
+            kind, q = self._state(combo, limit)
+            if kind == "failing":  # every affordable quality fails exactly: it cannot win
                 state.pruned = True
                 continue
-            hit = np.flatnonzero(curve >= 0)
-            at = hit[0] if hit.size else len(self.qualities) - 1
-            forecast[combo] = (size[:, at].sum(), slack, at)
-        if not forecast:
+            if kind == "resolved":
+                state.resolved, state.best = True, q
+                continue
+            own = any((p.cutoff, p.subsampling) == combo for points in self.known.values() for p in points)
+            if own and curve[: limit + 1].max() < -PRUNE_MARGIN:
+                state.pruned = True  # forecast, calibrated on its own points, far from qualifying
+                continue
+            hit = np.flatnonzero(curve[: limit + 1] >= 0)
+            at = int(hit[0]) if hit.size else None
+            cost = float(size[:, at].sum()) if at is not None else np.inf
+            open_combos[combo] = (cost, slack, at, limit, kind, q)
+        if not open_combos:
             return {}
-        cheapest = min(v[0] for v in forecast.values())
-        working = {c for c, v in forecast.items() if v[0] <= cheapest * (1 + BYTES_TOLERANCE)}
-        plain = [c for c in forecast if c[0] == budget.PLAIN_CUTOFF]
-        if plain and best_plain is None:
-            working.add(min(plain, key=lambda c: forecast[c][0]))
+        plain = [c for c in open_combos if c[0] == budget.PLAIN_CUTOFF]
+        if best_exact is None or (plain and best_plain is None):
+            # Nothing exact to bound with yet: the cheapest forecast combo (and the cheapest plain one,
+            # for the fallback) first; the rest wait for the bound.
+            order = sorted(open_combos, key=lambda c: (open_combos[c][0], c))
+            working = {order[0]} if best_exact is None else set()
+            if plain and best_plain is None:
+                working.add(min(plain, key=lambda c: (open_combos[c][0], c)))
+        else:
+            working = set(open_combos)
         out: dict[str, list[tuple[Setting, ...]]] = {}
         for combo in sorted(working):
             state = self.combos[combo]
             state.rounds += 1
-            for key, ladder in self._ladders(combo, forecast[combo][1], forecast[combo][2], state).items():
+            for key, ladder in self._ladders(combo, state, *open_combos[combo][1:]).items():
                 out.setdefault(key, []).append(ladder)
         return out
 
@@ -298,33 +321,53 @@ class ClassSearch:
                   if st.resolved and st.best is not None and (not plain or c[0] == budget.PLAIN_CUTOFF)]
         return min(totals) if totals else None
 
-    def _ladders(self, combo, slack: np.ndarray, forecast_at: int, state: ComboState) -> dict[str, tuple[Setting, ...]]:
+    def _likely_failing(self, slack: np.ndarray, j: int) -> list[int]:
+        """Indices of the images most likely to fail at quality index j: as many as a failure needs."""
+        failing_needed = len(self.keys) - self.need + 1
+        return np.argsort(slack[:, j], kind="stable")[:failing_needed].tolist()
+
+    def _ladders(self, combo, state: ComboState, slack: np.ndarray, at: int | None, limit: int, kind: str,
+                 q: int) -> dict[str, tuple[Setting, ...]]:
         k, s = combo
         qs = self.qualities.tolist()
-        kind, q = self._state(combo)
         index = qs.index(q)
+        known = self.known
+
+        def missing(key, settings):
+            return tuple(x for x in settings if x not in known[key])
+
         if kind == "complete":
-            return {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in self.known[key]}
-        if state.rounds > MAX_ROUNDS:  # give up guessing: every quality from here up, exactly
-            return {key: tuple(Setting(x, k, s) for x in reversed(qs[index:]) if Setting(x, k, s) not in self.known[key])
-                    for key in self.keys}
-        top = max(index, forecast_at)
-        # Below the top rung only failures can settle a quality: ask the images most likely to fail
-        # there, as many as it takes (more than N - need), and leave the rest.
-        failing_needed = len(self.keys) - self.need + 1
-        rungs: dict[str, list[Setting]] = {key: [Setting(qs[top], k, s)] for key in self.keys}
-        for j in range(top - 1, index - 1, -1):
-            likely = np.argsort(slack[:, j], kind="stable")[:failing_needed]
-            for i in likely.tolist():
-                if slack[i, j] <= DESCEND_MARGIN:
-                    rungs[self.keys[i]].append(Setting(qs[j], k, s))
-        out = {}
-        for key, ladder in rungs.items():
-            ladder = [x for x in ladder if x not in self.known[key]]
-            if ladder:
-                out[key] = tuple(ladder)
-        if not out:  # the forecast rungs are known: step down exactly from the unknown quality
-            out = {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in self.known[key]}
+            return {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in known[key]}
+        if state.rounds > MAX_ROUNDS:  # give up guessing: every affordable quality from here up, exactly
+            return {key: m for key in self.keys
+                    if (m := missing(key, [Setting(x, k, s) for x in reversed(qs[index : limit + 1])]))}
+        if at is None or at < index:
+            # Forecast to fail wherever it could win: refute from the highest affordable quality down,
+            # with the images most likely to fail (their first clear failure covers everything below).
+            top = limit if at is None else index
+            rungs = {}
+            for j in range(top, index - 1, -1):
+                for i in self._likely_failing(slack, j):
+                    if j == top or slack[i, j] <= DESCEND_MARGIN:
+                        rungs.setdefault(self.keys[i], []).append(Setting(qs[j], k, s))
+        else:
+            top = at
+            probe = Setting(qs[top], k, s)
+            likely = self._likely_failing(slack, top)
+            if not any(probe in known[self.keys[i]] for i in likely):
+                # First the images most likely to fail at the forecast crossing: if they fail clearly
+                # there, the other images need not be evaluated at it.
+                rungs = {self.keys[i]: [probe] for i in likely}
+            else:
+                rungs = {key: [probe] for key in self.keys}
+            # Below the top rung only failures can settle a quality: the likely failers descend.
+            for j in range(top - 1, index - 1, -1):
+                for i in self._likely_failing(slack, j):
+                    if slack[i, j] <= DESCEND_MARGIN and self.keys[i] in rungs:
+                        rungs[self.keys[i]].append(Setting(qs[j], k, s))
+        out = {key: m for key, ladder in rungs.items() if (m := missing(key, ladder))}
+        if not out:  # the forecast rungs are known: step exactly from the unknown quality
+            out = {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in known[key]}
         return out
 
     # -- the answer ----------------------------------------------------------------------

@@ -281,10 +281,10 @@ def test_web_app_sweeps_on_the_cluster_named_by_the_environment(tmp_path, monkey
         set_id = web.upload(client)
         sweep = client.post(f"/api/sample-sets/{set_id}/sweeps", json=web.REQUEST).get_json()["id"]
         body = web.wait_done(client, sweep)
-        # The work really ran on the cluster: its scheduler has seen evaluate_image tasks.
+        # The work really ran on the cluster: its scheduler has seen the search's evaluate_search tasks.
         with DaskRunner(fresh.scheduler_address) as runner:
             prefixes = runner.connect().run_on_scheduler(lambda dask_scheduler: list(dask_scheduler.task_prefixes))
     assert body["status"] == "done"
-    assert any(p.startswith("evaluate_image") for p in prefixes), prefixes
+    assert any(p.startswith("evaluate_search") for p in prefixes), prefixes
     got = body["result"]
     assert {k: v for k, v in got.items() if k != "created"} == {k: v for k, v in expected.items() if k != "created"}
