@@ -8,7 +8,10 @@ so one broken file never sinks a sample set.
 
 from __future__ import annotations
 
+import hashlib
 import io as _io
+import os
+import pickle
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -104,7 +107,9 @@ def _per_width(job, work) -> ImageResult:
             result.error = f"image too small: {w}x{h} pixels; SSIM needs at least {MIN_SIDE}x{MIN_SIDE}"
             result.curves = []
             return result
-        points, forecast = work(width, _prepared(job, width, pixels))
+        prepared = _prepared(job, width, pixels)
+        points, forecast = work(width, prepared)
+        _keep(job, width, prepared)
         result.curves.append(WidthCurve(width, w, h, points))
         if forecast is not None:
             result.forecasts[width] = forecast
@@ -112,15 +117,45 @@ def _per_width(job, work) -> ImageResult:
 
 
 # A worker keeps its most recent prepared images: a class search comes back to the same images in
-# rounds, and with one worker (or few images per worker) their transforms are then done once.
+# rounds, and with one worker (or few images per worker) their transforms are then done once. A local
+# pool's workers also share them through the sweep's private store folder, so a round that lands an
+# image on another worker loads its transforms (milliseconds) instead of redoing them.
 PREPARED_CACHE_PIXELS = 12_000_000
 _prepared_cache: dict = {}
 
 
+def _prepared_key(job, width) -> tuple:
+    source = job.source if isinstance(job.source, str) else hashlib.sha1(job.source).hexdigest()
+    return (source, width, tuple(job.background))
+
+
+def _stored_path(job, width) -> str | None:
+    """Where a search job's prepared image is shared between worker processes (None: not shared)."""
+    store = getattr(job, "store", None)
+    if not store:
+        return None
+    return os.path.join(store, hashlib.sha1(repr(_prepared_key(job, width)).encode()).hexdigest() + ".pickle")
+
+
+def _keep(job, width, prepared: PreparedImage) -> None:
+    """Share a prepared image with the sweep's other workers (written once, atomically)."""
+    path = _stored_path(job, width)
+    if path is None or os.path.exists(path):
+        return
+    tmp = f"{path}.{os.getpid()}.tmp"
+    with open(tmp, "wb") as f:
+        pickle.dump(prepared, f, protocol=pickle.HIGHEST_PROTOCOL)
+    os.replace(tmp, path)
+
+
 def _prepared(job, width, pixels: np.ndarray) -> PreparedImage:
-    source = job.source if isinstance(job.source, str) else hash(job.source)
-    key = (source, width, tuple(job.background))
+    key = _prepared_key(job, width)
     hit = _prepared_cache.pop(key, None)
+    if hit is None:
+        path = _stored_path(job, width)
+        if path is not None and os.path.exists(path):
+            with open(path, "rb") as f:
+                hit = pickle.load(f)  # written by this sweep's own workers (dct.pipeline)
     if hit is not None and hit.height == pixels.shape[0] and hit.width == pixels.shape[1]:
         _prepared_cache[key] = hit  # most recent last
         return hit
@@ -152,6 +187,7 @@ class SearchJob:
     forecast: bool = False
     points: tuple = ()  # ((width, (Setting, ...)), ...)
     ladders: tuple = ()  # ((width, ((Setting, ...), ...)), ...)
+    store: str | None = None  # a private folder where workers share prepared images (dct.pipeline)
 
 
 def evaluate_search(job: SearchJob) -> ImageResult:

@@ -18,6 +18,7 @@ without computing again (:func:`redecide`).
 
 from __future__ import annotations
 
+import tempfile
 import threading
 from dataclasses import dataclass, field, replace
 from typing import Callable, Iterable
@@ -304,11 +305,22 @@ def _outcome(jobs, results, classes, current, grid, rejected, plain_only, counte
 def _search(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only):
     """Forecast every image, then run every class's search (``dct.search``) in shared rounds: each
     round is one job per image that still has something to evaluate. None when cancelled."""
+    from .runner import LocalPoolRunner
+
+    if isinstance(runner, LocalPoolRunner):
+        # The pool's workers share prepared images here (private to this user, removed at the end).
+        with tempfile.TemporaryDirectory(prefix="eightfold-prepared-") as store:
+            return _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel, counters,
+                                  plain_only, store)
+    return _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only, None)
+
+
+def _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only, store):
     by_key = {j.key: j for j in jobs}
 
     def job_for(j: ImageJob, **kw) -> SearchJob:
         return SearchJob(j.key, j.class_name, j.source, tuple(j.widths), tuple(j.background),
-                         targets_for(classes[j.class_name]), **kw)
+                         targets_for(classes[j.class_name]), store=store, **kw)
 
     first = [job_for(j, grid=grid, forecast=True, points=tuple((w, (current,)) for w in j.widths)) for j in jobs]
     tracker.grow(len(first))

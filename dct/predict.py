@@ -97,7 +97,7 @@ def block_ssim(original: np.ndarray, decoded: np.ndarray) -> np.ndarray:
 class PlanePrediction:
     """One component's predictions for qualities x cutoffs, from its sampled blocks."""
 
-    ssim: np.ndarray  # (nq, nk) mean block SSIM
+    ssim: np.ndarray  # (nq, nk) mean block SSIM (or (nf, nk) at the ``fine`` qualities)
     nonzeros: np.ndarray  # (nq, nk) nonzero quantized coefficients in the sample (DC and AC)
     magnitude_bits: np.ndarray  # (nq, nk) sum of the bit lengths of those nonzero values
     blocks: int
@@ -256,19 +256,16 @@ def forecast(prepared: PreparedImage, grid) -> "Forecast":
     weight = np.clip((np.array(fine_qualities, float) - np.array(qualities, float)[lower]) / np.where(span > 0, span, 1), 0, 1)
     luma_fine = (fine_luma[:, 0], lower, upper, weight)
     chroma_fine = (fine_chroma[:, 0], lower, upper, weight)
-    luma = predict_plane(sample.luma, luma_tables, grid.cutoffs)
-    luma_ssim = predict_plane(sample.luma, luma_tables, grid.cutoffs, fine=luma_fine).ssim
+    luma = predict_plane(sample.luma, luma_tables, grid.cutoffs, fine=luma_fine)
     anchors = sorted({qualities[round(i * (len(qualities) - 1) / max(1, ANCHORS - 1))] for i in range(ANCHORS)})
     chroma, total_bits = {}, {}
     for s in subsamplings:
         proxy = _proxy_bits(luma)
         if not prepared.grayscale:
-            cb, cr = (predict_plane(x, chroma_tables, grid.cutoffs) for x in sample.chroma[s])
-            cb_fine, cr_fine = (predict_plane(x, chroma_tables, grid.cutoffs, fine=chroma_fine).ssim
-                                for x in sample.chroma[s])
+            cb, cr = (predict_plane(x, chroma_tables, grid.cutoffs, fine=chroma_fine) for x in sample.chroma[s])
             # Subsampling's own loss adds to quantization's: 1 - SSIM ~ (1 - S_mode) + (1 - S_quant).
             ceiling = prepared.subsampling_ssim(s)
-            chroma[s] = (cb_fine - (1 - ceiling[0]), cr_fine - (1 - ceiling[1]))
+            chroma[s] = (cb.ssim - (1 - ceiling[0]), cr.ssim - (1 - ceiling[1]))
             proxy = proxy + _proxy_bits(cb) + _proxy_bits(cr)
         scaled = np.empty_like(proxy)
         for j, k in enumerate(grid.cutoffs):
@@ -276,5 +273,5 @@ def forecast(prepared: PreparedImage, grid) -> "Forecast":
             ratio = [sample_bits(sample, q, k, s) / max(proxy[i, j], 1.0) for q, i in zip(anchors, at)]
             scaled[:, j] = proxy[:, j] * np.interp(qualities, anchors, ratio)
         total_bits[s] = scaled / sample.fraction
-    return Forecast(tuple(fine_qualities), tuple(grid.cutoffs), subsamplings, luma_ssim, chroma, total_bits,
+    return Forecast(tuple(fine_qualities), tuple(grid.cutoffs), subsamplings, luma.ssim, chroma, total_bits,
                     HEADER_BYTES, tuple(qualities))

@@ -9,7 +9,8 @@ evaluations:
 * every image's forecast (``dct.predict``, calibrated against the image's exact points: offsets of
   slack and ratios of bytes, interpolated along quality) says where each combo crosses the targets;
 * a quality *fails* for the class when more than ``N - need`` images fail there exactly, or *clearly*
-  fail at that quality or above: an exact slack below ``-CLEAR_MARGIN`` at quality q means failing at
+  fail at that quality or above (:func:`clear_failure`): a check short by more than the dips between
+  neighbouring qualities at quality q means failing at
   the lower qualities too, down to where the forecast sees a recovery. The forecast's luminance term
   is exact at every quality (it depends only on the DC step), so it sees the large dips that pure
   black or white areas cause when the DC step cannot reproduce their level; the small dips left
@@ -38,6 +39,9 @@ from .grid import Grid
 from .tables import Setting
 
 CLEAR_MARGIN = 0.004  # exact slack below -this: fails at every lower quality too (dips are smaller)
+# The blocking check counts levels, and its margin enters the slack divided by 100; its own steps
+# between neighbouring qualities are a few hundredths of a level, so a clear failure is this far over.
+BLOCKING_CLEAR_LEVELS = 0.03
 PRUNE_MARGIN = 0.03  # forecast slack is trusted to mean failure only this far below the targets
 BYTES_TOLERANCE = 0.08  # forecast bytes are trusted to be within this share of the exact bytes (seen: 5 %)
 DESCEND_MARGIN = 0.015  # ladders go below their top only for images forecast this close to failing
@@ -116,6 +120,7 @@ class ComboState:
     best: int | None = None  # Q*: the lowest qualifying quality (None: none qualifies)
     pruned: bool = False
     rounds: int = 0
+    step: int = 1  # the upward gallop's next stride, when the forecast does not place the crossing
 
     @property
     def combo(self) -> tuple[int, str]:
@@ -228,7 +233,7 @@ class ClassSearch:
                 ok = budget.accepts(m, self.targets)
                 acc, fail = per_q.setdefault(p.quality, (set(), set()))
                 (acc if ok else fail).add(key)
-                if not ok and budget.slack(m, self.targets) < -CLEAR_MARGIN:
+                if not ok and clear_failure(m, self.targets):
                     if raw is None:
                         raw = forecast_slack(*self.forecasts[key].column(k, s, qs)[:3], self.targets)
                     implied.setdefault(key, set()).update(_failing_below(raw, qs.index(p.quality), qs))
@@ -341,16 +346,29 @@ class ClassSearch:
         if state.rounds > MAX_ROUNDS:  # give up guessing: every affordable quality from here up, exactly
             return {key: m for key in self.keys
                     if (m := missing(key, [Setting(x, k, s) for x in reversed(qs[index : limit + 1])]))}
-        if at is None or at < index:
-            # Forecast to fail wherever it could win: refute from the highest affordable quality down,
-            # with the images most likely to fail (their first clear failure covers everything below).
-            top = limit if at is None else index
+        own = any((p.cutoff, p.subsampling) == combo for key in self.keys for p in known[key])
+        if at is None or at < index or (at == index and own):
+            # The forecast does not place the crossing above what is known (it fails everywhere
+            # affordable, or the exact points already disagree with it, e.g. through a check it
+            # cannot see): the images most likely to fail probe, and their first clear failure
+            # covers every quality below. Probe the highest affordable quality when the forecast
+            # says "never"; otherwise gallop upwards, and halve the gap once a probe passes.
+            passing = [qs.index(p.quality) for key in self.keys for p, m in known[key].items()
+                       if (p.cutoff, p.subsampling) == combo and p.quality > q and budget.accepts(m, self.targets)]
+            if passing:
+                top = (index + min(passing)) // 2
+            elif at is None:
+                top = limit
+            else:
+                top = min(limit, index + state.step - 1)
+                state.step *= 2
             rungs = {}
             for j in range(top, index - 1, -1):
                 for i in self._likely_failing(slack, j):
                     if j == top or slack[i, j] <= DESCEND_MARGIN:
                         rungs.setdefault(self.keys[i], []).append(Setting(qs[j], k, s))
         else:
+            state.step = 1
             top = at
             probe = Setting(qs[top], k, s)
             likely = self._likely_failing(slack, top)
@@ -389,6 +407,20 @@ def _failing_below(raw: np.ndarray, index: int, qualities: list[int]) -> list[in
     return out
 
 
+def clear_failure(measure: budget.Measure, targets: budget.Targets) -> bool:
+    """A failure by more than the dips between neighbouring qualities: some SSIM check short by more
+    than ``CLEAR_MARGIN``, or blocking over its limit by more than ``BLOCKING_CLEAR_LEVELS``."""
+    if budget.accepts(measure, targets):
+        return False
+    for name, margin in budget.margins(measure, targets).items():
+        if name == "blocking":
+            if margin * 100.0 < -BLOCKING_CLEAR_LEVELS:
+                return True
+        elif margin < -CLEAR_MARGIN:
+            return True
+    return False
+
+
 def stops_ladder(measure: budget.Measure, targets: budget.Targets) -> bool:
     """True when a ladder can stop after this point: a clear failure (nothing below passes)."""
-    return not budget.accepts(measure, targets) and budget.slack(measure, targets) < -CLEAR_MARGIN
+    return clear_failure(measure, targets)

@@ -298,6 +298,13 @@ class PreparedImage:
         self._chroma_planes = _Recent(2)
         self._damage_ref: damage.EdgeReference | None = None
 
+    def __getstate__(self) -> dict:
+        # The transforms and reference statistics travel; the per-table caches start empty again.
+        state = dict(self.__dict__)
+        for name in ("_luma_q", "_chroma_q", "_luma_planes", "_chroma_planes"):
+            state[name] = _Recent(state[name].size)
+        return state
+
     # -- transforms, done once ---------------------------------------------------------------
 
     def _luma_blocks(self) -> np.ndarray:
