@@ -34,6 +34,8 @@ The equality is checked pixel for pixel against Pillow's encoder (coefficients r
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 
 SCALEBITS = 16
@@ -101,6 +103,25 @@ def ycbcr_to_rgb(y: np.ndarray, cb: np.ndarray, cr: np.ndarray) -> np.ndarray:
     out[..., 1] = np.clip(y + ((_CB_TO_G[cb] + _CR_TO_G[cr]) >> SCALEBITS), 0, 255)
     out[..., 2] = np.clip(y + CB_TO_B[cb], 0, 255)
     return out
+
+
+@lru_cache(maxsize=1)
+def _seen_luma_table() -> np.ndarray:
+    """luma(ycbcr_to_rgb(y, cb, cr)) for every (y, cb, cr): 16 MiB, built once per process."""
+    cb, cr = np.meshgrid(np.arange(256, dtype=np.uint8), np.arange(256, dtype=np.uint8), indexing="ij")
+    table = np.empty((256, 256, 256), dtype=np.uint8)
+    for y in range(256):
+        table[y] = luma(ycbcr_to_rgb(np.full(cb.shape, y, np.uint8), cb, cr))
+    return table.reshape(-1)
+
+
+def decoded_luma(y: np.ndarray, cb: np.ndarray, cr: np.ndarray) -> np.ndarray:
+    """``luma(ycbcr_to_rgb(y, cb, cr))`` (what a viewer's luma of the decoded RGB is) by one lookup,
+    without making the RGB image; (H, W) uint8."""
+    index = np.left_shift(y, 16, dtype=np.int32)
+    index |= np.left_shift(cb, 8, dtype=np.int32)
+    index |= cr
+    return _seen_luma_table()[index]
 
 
 def pad_edges(plane: np.ndarray, height: int, width: int) -> np.ndarray:

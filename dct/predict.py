@@ -37,7 +37,7 @@ from .quality import C1, C2
 from .simulate import PreparedImage, quantize, reciprocal_divisors
 from .tables import ZIGZAG, quant_tables
 
-SAMPLE_BLOCKS = 1024  # luma blocks the predictions look at, at most (16 MP images: 1 band in 128)
+SAMPLE_BLOCKS = 512  # luma blocks the forecasts look at, at most (1 MP: one 16-pixel band in 16)
 _FULL = np.full(64, 255, dtype=np.int32)  # the table a cutoff leaves past position K
 
 
@@ -202,7 +202,7 @@ def quality_tables_zigzag(qualities) -> tuple[np.ndarray, np.ndarray]:
 SYMBOL_BITS = 4.5  # a (run, size) Huffman code, on average: the proxy's shape, not its scale
 EOB_BITS = 3.0
 HEADER_BYTES = 620  # markers, two quantization tables and four Huffman tables, roughly
-ANCHORS = 3  # coarse qualities per combo whose sample is entropy-coded exactly, to scale the proxy
+ANCHORS = 2  # coarse qualities per combo whose sample is entropy-coded exactly, to scale the proxy
 
 
 def _proxy_bits(p: PlanePrediction) -> np.ndarray:

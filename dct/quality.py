@@ -136,7 +136,7 @@ class ReferenceStats:
         for s in range(0, h, STRIP):
             yield s, min(s + STRIP, h)
 
-    def compare(self, distorted: np.ndarray, *, want_map: bool = False) -> "SsimResult":
+    def compare(self, distorted: np.ndarray, *, want_map: bool = False, want_local: bool = True) -> "SsimResult":
         """SSIM of a distorted plane against this reference.
 
         Parameters
@@ -144,6 +144,8 @@ class ReferenceStats:
         distorted : ndarray, shape (H, W), on the 0..255 scale
         want_map : bool
             Also return the full SSIM map (H, W), float32 (``step`` 1 only).
+        want_local : bool
+            Compute the local statistic (False leaves it NaN and skips the tile means).
 
         Returns
         -------
@@ -205,7 +207,7 @@ class ReferenceStats:
                 inner = strip[r0 - lo : r1 - lo, col0:col1]
                 total += float(inner.sum(dtype=np.float64))
                 count += inner.size
-            if step == 1:
+            if step == 1 and want_local:
                 tiles.append(_tile_means(strip))
             d = (y[s:e] - self.plane[s:e]).ravel()
             sq_err += float(np.dot(d, d))

@@ -280,7 +280,10 @@ class ClassSearch:
             curve = self._class_curve(slack)
             bound = best_plain if combo[0] == budget.PLAIN_CUTOFF else best_exact
             limit = top_index
+            own = any((p.cutoff, p.subsampling) == combo for points in self.known.values() for p in points)
             if bound is not None:  # only qualities whose bytes could come in under the bound matter
+                # (Not tighter near exact points: pure black makes bytes dip at single qualities too,
+                # where the DC step reproduces its level, and the bytes forecast is smooth in quality.)
                 affordable = np.flatnonzero(size.sum(axis=0) * (1 - BYTES_TOLERANCE) < bound)
                 if affordable.size == 0:
                     state.pruned = True
@@ -293,7 +296,6 @@ class ClassSearch:
             if kind == "resolved":
                 state.resolved, state.best = True, q
                 continue
-            own = any((p.cutoff, p.subsampling) == combo for points in self.known.values() for p in points)
             if own and curve[: limit + 1].max() < -PRUNE_MARGIN:
                 state.pruned = True  # forecast, calibrated on its own points, far from qualifying
                 continue

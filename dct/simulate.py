@@ -396,7 +396,8 @@ class PreparedImage:
             planes = [color.upsample(_decode_plane(q, table, rows, cols), h, v, self.height, self.width)
                       for q in self._quantized_chroma(table, subsampling)]
             ref_cb, ref_cr = self._chroma_reference()
-            return _ChromaDecode((planes[0], planes[1]), ref_cb.compare(planes[0]), ref_cr.compare(planes[1]))
+            return _ChromaDecode((planes[0], planes[1]), ref_cb.compare(planes[0], want_local=False),
+                                 ref_cr.compare(planes[1], want_local=False))
 
         return self._chroma_planes.get((subsampling, table.tobytes()), decode)
 
@@ -447,8 +448,11 @@ class PreparedImage:
             decoded = seen_luma = luma
         else:
             chroma = self._decode_chroma(chroma_t, subsampling)
-            decoded = color.ycbcr_to_rgb(luma, *chroma.planes)
-            seen_luma = color.luma(decoded)
+            if want_arrays:
+                decoded = color.ycbcr_to_rgb(luma, *chroma.planes)
+                seen_luma = color.luma(decoded)
+            else:  # the same luma by one table lookup, without the RGB image
+                seen_luma = color.decoded_luma(luma, *chroma.planes)
         scan = self._scan(luma_t, chroma_t, subsampling)
         optimal = self._file_size(scan, True)
         standard = self._file_size(scan, False)
