@@ -160,11 +160,11 @@ def _prepared(job, width, pixels: np.ndarray) -> PreparedImage:
         _prepared_cache[key] = hit  # most recent last
         return hit
     prepared = PreparedImage(pixels)
-    size = pixels.shape[0] * pixels.shape[1]
-    if size <= PREPARED_CACHE_PIXELS:
-        _prepared_cache[key] = prepared
-        while sum(p.height * p.width for p in _prepared_cache.values()) > PREPARED_CACHE_PIXELS:
-            _prepared_cache.pop(next(iter(_prepared_cache)))
+    _prepared_cache[key] = prepared
+    # Within the pixel budget; the newest entry is kept even alone over it (a huge image's next
+    # round then reuses its transforms instead of redoing them).
+    while len(_prepared_cache) > 1 and sum(p.height * p.width for p in _prepared_cache.values()) > PREPARED_CACHE_PIXELS:
+        _prepared_cache.pop(next(iter(_prepared_cache)))
     return prepared
 
 

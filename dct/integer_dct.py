@@ -127,6 +127,9 @@ def pass_matrix(kind: str) -> np.ndarray:
     return np.array(columns, dtype=np.float64)
 
 
+CHUNK_BLOCKS = 1 << 15  # blocks per matrix product: 16 MiB of float64 per temporary
+
+
 def _descale(x: np.ndarray, bits: int) -> np.ndarray:
     """libjpeg's DESCALE on exact integers held in float64: floor((x + 2**(bits-1)) / 2**bits)."""
     x += float(1 << (bits - 1))
@@ -148,10 +151,14 @@ def forward_dct_islow(blocks: np.ndarray) -> np.ndarray:
         8 times the orthonormal DCT of each block, rounded as libjpeg rounds it (natural order).
     """
     m = pass_matrix("forward")
-    x = np.asarray(blocks, dtype=np.float64)
-    rows = _descale(x @ m.T, CONST_BITS - PASS1_BITS)  # each row of each block
-    cols = _descale(m @ rows, CONST_BITS + PASS1_BITS)  # then each column
-    return cols.astype(np.int32)
+    blocks = np.asarray(blocks)
+    flat = blocks.reshape(-1, 8, 8)
+    out = np.empty(flat.shape, dtype=np.int32)
+    for s in range(0, flat.shape[0], CHUNK_BLOCKS):  # bounded float64 temporaries on large images
+        x = flat[s : s + CHUNK_BLOCKS].astype(np.float64)
+        rows = _descale(x @ m.T, CONST_BITS - PASS1_BITS)  # each row of each block
+        out[s : s + CHUNK_BLOCKS] = _descale(m @ rows, CONST_BITS + PASS1_BITS)  # then each column
+    return out.reshape(blocks.shape)
 
 
 def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
@@ -167,6 +174,10 @@ def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
     -------
     ndarray, shape (N, 8, 8), uint8
     """
+    coefficients = np.asarray(coefficients)
+    if coefficients.shape[0] > CHUNK_BLOCKS:  # bounded float64 temporaries on large images
+        return np.concatenate([inverse_dct_islow(coefficients[s : s + CHUNK_BLOCKS])
+                               for s in range(0, coefficients.shape[0], CHUNK_BLOCKS)])
     m = pass_matrix("inverse")
     z = np.asarray(coefficients, dtype=np.float64)
     n = z.shape[0]

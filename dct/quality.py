@@ -45,6 +45,7 @@ RADIUS = int(TRUNCATE * SIGMA + 0.5)  # 5, as scipy.ndimage computes it
 STRIP = 256  # rows per strip (a multiple of LOCAL_TILE and of every step)
 LOCAL_TILE = 16  # side of the tiles whose mean SSIM is the "local" SSIM
 LOCAL_PERCENTILE = 5.0  # the local floor looks at the worst 5 % of tiles
+KEEP_STATS_PIXELS = 4_000_000  # planes up to this keep their reference statistics between comparisons
 
 
 @lru_cache(maxsize=None)
@@ -104,7 +105,7 @@ class ReferenceStats:
         Eightfold uses 2 for the chroma planes; luma SSIM, its map and the local statistic always use 1.
     """
 
-    def __init__(self, reference: np.ndarray, *, step: int = 1):
+    def __init__(self, reference: np.ndarray, *, step: int = 1, keep_stats: bool | None = None):
         ref = np.asarray(reference)
         if ref.ndim != 2:
             raise ValueError(f"reference must be a 2-D plane, got shape {ref.shape!r}")
@@ -118,18 +119,28 @@ class ReferenceStats:
         self.shape = ref.shape
         # Small planes are cheap, and sampling would leave too few interior pixels: use them all.
         self.step = step = step if min(ref.shape) >= 64 else 1
-        # The plane itself is kept by reference (no copy); level-shifted strips are made on the fly.
-        self.plane = ref if ref.dtype == np.float32 else ref.astype(np.float32)
-        sampled = (-(-ref.shape[0] // step), -(-ref.shape[1] // step))
-        self.mean = np.empty(sampled, dtype=np.float32)  # mu_x at the sampled pixels
-        self.var = np.empty(sampled, dtype=np.float32)  # sigma_x^2
-        for s, e in self._strips():
-            xs = _rows_with_halo(self.plane, s, e) - 128.0
-            ux = _filter(xs)[::step, ::step]
-            xx = _filter(xs * xs)[::step, ::step]
-            lo, hi = s // step, -(-e // step)
-            self.mean[lo:hi] = ux + 128.0
-            self.var[lo:hi] = xx - ux * ux
+        # The plane itself is kept by reference (no copy, uint8 stays uint8); float32 strips are made
+        # on the fly.
+        self.plane = ref if ref.dtype in (np.float32, np.uint8) else ref.astype(np.float32)
+        # Large planes recompute their mean and variance strip by strip in every comparison (two
+        # more filters of five) instead of keeping 8 bytes per pixel: the same numbers, bounded memory.
+        self.keep_stats = ref.size <= KEEP_STATS_PIXELS if keep_stats is None else bool(keep_stats)
+        self.mean = self.var = None
+        if self.keep_stats:
+            sampled = (-(-ref.shape[0] // step), -(-ref.shape[1] // step))
+            self.mean = np.empty(sampled, dtype=np.float32)  # mu_x at the sampled pixels
+            self.var = np.empty(sampled, dtype=np.float32)  # sigma_x^2
+            for s, e in self._strips():
+                lo, hi = s // step, -(-e // step)
+                self.mean[lo:hi], self.var[lo:hi] = self._strip_stats(s, e)
+
+    def _strip_stats(self, s: int, e: int) -> tuple[np.ndarray, np.ndarray]:
+        """mu_x and sigma_x^2 at the sampled pixels of rows s..e."""
+        step = self.step
+        xs = _rows_with_halo(self.plane, s, e).astype(np.float32) - 128.0
+        ux = _filter(xs)[::step, ::step]
+        xx = _filter(xs * xs)[::step, ::step]
+        return ux + 128.0, xx - ux * ux
 
     def _strips(self):
         h = self.shape[0]
@@ -174,15 +185,19 @@ class ReferenceStats:
             # n1 / (n1 + mu_e^2) with n1 = 2 mu_x mu_y + C1, and the contrast-structure factor is
             # n2 / (n2 + sigma_e^2) with n2 = 2 sigma_x^2 + 2 sigma_xe + C2. Filtering e, e^2 and
             # (x - 128) e avoids the float32 cancellation of filtering y^2 and x y directly.
-            es = _rows_with_halo(y, s, e) - _rows_with_halo(self.plane, s, e)
-            xe = _rows_with_halo(self.plane, s, e) - 128.0
+            xe = _rows_with_halo(self.plane, s, e).astype(np.float32)
+            es = _rows_with_halo(y, s, e) - xe
+            xe -= 128.0
             xe *= es
             ue = _filter(es)[::step, ::step]
             es *= es
             ee = _filter(es)[::step, ::step]
             sxe = _filter(xe)[::step, ::step]
             lo, hi = s // step, -(-e // step)
-            ux = self.mean[lo:hi]
+            if self.keep_stats:
+                ux, var_x = self.mean[lo:hi], self.var[lo:hi]
+            else:
+                ux, var_x = self._strip_stats(s, e)
             uxs = ux - 128.0
             sxe -= uxs * ue  # sigma_xe
             ee -= ue * ue  # sigma_e^2
@@ -192,7 +207,7 @@ class ReferenceStats:
             n1 += C1
             ue *= ue
             ue += n1  # luminance denominator
-            n2 = self.var[lo:hi] + sxe
+            n2 = var_x + sxe
             n2 *= 2.0
             n2 += C2
             ee += n2  # contrast-structure denominator
@@ -209,7 +224,7 @@ class ReferenceStats:
                 count += inner.size
             if step == 1 and want_local:
                 tiles.append(_tile_means(strip))
-            d = (y[s:e] - self.plane[s:e]).ravel()
+            d = (y[s:e] - self.plane[s:e].astype(np.float32)).ravel()
             sq_err += float(np.dot(d, d))
         tile_means = np.concatenate(tiles, axis=0) if tiles else None
         return SsimResult(

@@ -188,19 +188,34 @@ def _blocks(plane: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(coef[..., ZIGZAG])
 
 
-class _Recent:
-    """A small cache of the most recently used entries."""
+def _nbytes(value) -> int:
+    if isinstance(value, np.ndarray):
+        return value.nbytes
+    if isinstance(value, (tuple, list)):
+        return sum(_nbytes(v) for v in value)
+    if isinstance(value, _ChromaDecode):
+        return _nbytes(value.planes)
+    return 0
 
-    def __init__(self, size: int):
+
+class _Recent:
+    """A small cache of the most recently used entries, bounded in count and in bytes (a large image
+    keeps fewer entries, so a sweep's memory stays bounded)."""
+
+    def __init__(self, size: int, max_bytes: int = 48 << 20):
         self.size = size
+        self.max_bytes = max_bytes
         self._items: OrderedDict = OrderedDict()
 
     def get(self, key, make):
         if key in self._items:
             self._items.move_to_end(key)
             return self._items[key]
-        value = self._items[key] = make()
-        if len(self._items) > self.size:
+        value = make()
+        if _nbytes(value) > self.max_bytes:
+            return value  # too large to keep: recomputed when asked again
+        self._items[key] = value
+        while len(self._items) > self.size or sum(_nbytes(v) for v in self._items.values()) > self.max_bytes:
             self._items.popitem(last=False)
         return value
 

@@ -123,3 +123,16 @@ def test_strips_join_seamlessly():
     assert abs(ours.ssim - ref_mean) < 1e-5
     np.testing.assert_allclose(ours.ssim_map, ref_map, atol=1e-4)
     assert ours.tile_means.shape == (-(-x.shape[0] // 16), -(-x.shape[1] // 16))
+
+
+def test_recomputed_reference_statistics_give_the_same_ssim():
+    """Large planes recompute their mean and variance per strip (bounded memory): same numbers."""
+    from dct.quality import ReferenceStats
+
+    rng = np.random.default_rng(11)
+    ref = rng.integers(0, 256, size=(300, 280)).astype(np.uint8)
+    dist = np.clip(ref + rng.normal(0, 12, ref.shape), 0, 255).astype(np.uint8)
+    kept = ReferenceStats(ref, keep_stats=True).compare(dist, want_map=True)
+    recomputed = ReferenceStats(ref, keep_stats=False).compare(dist, want_map=True)
+    assert kept.ssim == recomputed.ssim and kept.local == recomputed.local
+    np.testing.assert_array_equal(kept.ssim_map, recomputed.ssim_map)
