@@ -50,11 +50,13 @@ class SweepOutcome:
 
 def _job_fingerprint(job) -> str:
     if isinstance(job, SearchJob):
+        # Targets matter only to ladders (where they stop): forecasts are reused across targets.
+        targets = job.targets
         return fingerprint("search", job.source, {
             "widths": list(job.widths),
             "background": list(job.background),
-            "targets": [job.targets.target_ssim, job.targets.coverage, job.targets.effective_chroma_floor,
-                        job.targets.local_floor, job.targets.edge_floor, job.targets.blocking_limit],
+            "targets": [targets.target_ssim, targets.coverage, targets.effective_chroma_floor, targets.local_floor,
+                        targets.edge_floor, targets.blocking_limit] if job.ladders else None,
             "grid": job.grid.as_dict() if job.forecast else None,
             "points": [[w, [s.as_dict() for s in ss]] for w, ss in job.points],
             "ladders": [[w, [[s.as_dict() for s in ladder] for ladder in ls]] for w, ls in job.ladders],

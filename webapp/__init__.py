@@ -36,6 +36,9 @@ def create_app(test_config=None):
         MAX_FILES_PER_SET=2000,
         SWEEP_WORKERS=None,  # None lets dct.runner pick (CPU count or EIGHTFOLD_* environment)
         SWEEP_GRID=None,  # optional coarse grid override handed to the pipeline, if it takes one
+        # "search" (fast; changed targets decide among the settings it evaluated) or "grid" (every
+        # image on the coarse grid: slower, curves that answer any target); EIGHTFOLD_STRATEGY too.
+        SWEEP_STRATEGY=None,
         SWEEP_AUTORESUME=True,
         # Owner login, hosts and links (webapp.security); the environment fills these for `eightfold serve`.
         OWNER_PASSWORD=None,  # plain password or werkzeug hash; only the hash is kept (OWNER_PASSWORD_HASH)

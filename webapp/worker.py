@@ -29,6 +29,7 @@ class SweepWorker:
         self.root = config["DATA_DIR"]
         self.workers = config.get("SWEEP_WORKERS")
         self.grid = config.get("SWEEP_GRID")
+        self.strategy = config.get("SWEEP_STRATEGY") or os.environ.get("EIGHTFOLD_STRATEGY") or "search"
         self._queue: queue.Queue = queue.Queue()
         self._cancel: dict[str, threading.Event] = {}
         self._reused: dict[str, int] = {}  # passes of a running sweep taken from the result cache
@@ -147,7 +148,8 @@ class SweepWorker:
             jobs = [dataclasses.replace(j, source=Path(j.source).read_bytes()) for j in jobs]
         try:
             kwargs = dict(current=current, runner=runner, progress=progress, on_reused=on_reused, cancel=event,
-                          cache=cache, rejected=rejected, plain_only=validation.plain_only(sweep["params"]))
+                          cache=cache, rejected=rejected, plain_only=validation.plain_only(sweep["params"]),
+                          strategy=self.strategy)
             if self.grid is not None:
                 kwargs["grid"] = make_grid(self.grid)
             return run_sweep(jobs, classes, **kwargs)
