@@ -357,6 +357,12 @@ def _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel,
             return None
         for key, r in extra.items():
             if r.error is not None:
+                # A later round failed on this image (a worker died, say): it is listed as rejected
+                # with the reason, and every class decides on its other images.
+                results[key].error = r.error
+                results[key].curves = []
+                for search in searches.values():
+                    search.drop(key)
                 continue
             results[key] = _merge(results[key], r)
             for curve in r.curves:

@@ -151,6 +151,18 @@ class ClassSearch:
 
     # -- exact points in ----------------------------------------------------------------
 
+    def drop(self, key: str) -> None:
+        """Leave an image out (it could not be evaluated): the search starts over on the others,
+        keeping every exact point it has."""
+        if key not in self.forecasts:
+            return
+        del self.forecasts[key]
+        self.known.pop(key, None)
+        self.keys = sorted(self.forecasts)
+        self.need = need_count(len(self.keys), self.targets.coverage) if self.keys else 0
+        for state in self.combos.values():
+            state.resolved, state.best, state.pruned, state.rounds, state.step = False, None, False, 0, 1
+
     def add(self, key: str, setting: Setting, measure: budget.Measure) -> None:
         self.known[key][setting] = measure
 
@@ -264,6 +276,8 @@ class ClassSearch:
         (pruned), or has its affordable qualities refuted by a few clear failures of the images most
         likely to fail, or, forecast to pass there, is resolved exactly too.
         """
+        if not self.keys:
+            return {}
         top_index = len(self.qualities) - 1
         for state in self.combos.values():
             if not state.resolved:

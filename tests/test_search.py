@@ -156,3 +156,24 @@ def test_forecast_tracks_exact_ssim_and_bytes():
     assert np.corrcoef(luma, [e.ssim for e in exact])[0, 1] > 0.99
     assert np.corrcoef(cb, [e.ssim_cb for e in exact])[0, 1] > 0.97  # chroma 4:2:0: 0.98 seen
     np.testing.assert_allclose(size, [e.estimated_bytes for e in exact], rtol=0.10)
+
+
+def test_an_image_failing_in_a_later_round_is_listed_and_the_rest_decide(sample, monkeypatch):
+    """A worker that dies on one image after its forecast (a later round) loses only that image."""
+    import dct.pipeline as pipeline
+    from dct.evaluate import ImageResult, evaluate_search
+
+    victim = sorted(j.key for j in sample.jobs if j.class_name == "photo")[0]
+
+    def flaky(job):
+        if job.key == victim and job.ladders:
+            return ImageResult(job.key, job.class_name, error="evaluation failed: the worker process died")
+        return evaluate_search(job)
+
+    monkeypatch.setattr(pipeline, "evaluate_search", flaky)
+    outcome = run_sweep(sample.jobs, sample.classes, grid=GRID, runner=make_runner(workers=1))
+    rejected = {r["path"]: r["error"] for r in outcome.document["rejected"]}
+    assert "worker process died" in rejected[victim]
+    photo = next(c for c in outcome.document["classes"] if c["name"] == "photo")
+    assert photo["image_count"] == len([j for j in sample.jobs if j.class_name == "photo"]) - 1
+    assert photo["setting"] is not None
