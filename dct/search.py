@@ -180,7 +180,8 @@ class ClassSearch:
         """
         fc = self.forecasts[key]
         luma, cb, cr, size = fc.column(k, s, self.qualities)
-        points = self.known[key]
+        # Points outside the forecast's grid (the current default, say) cannot be compared with it.
+        points = {p: m for p, m in self.known[key].items() if p.cutoff in fc.cutoffs and p.subsampling in fc.subsamplings}
         t = self.targets
 
         def group(*tests):
@@ -370,7 +371,8 @@ class ClassSearch:
             # covers every quality below. Probe the highest affordable quality when the forecast
             # says "never"; otherwise gallop upwards, and halve the gap once a probe passes.
             passing = [qs.index(p.quality) for key in self.keys for p, m in known[key].items()
-                       if (p.cutoff, p.subsampling) == combo and p.quality > q and budget.accepts(m, self.targets)]
+                       if (p.cutoff, p.subsampling) == combo and p.quality > q and p.quality in qs
+                       and budget.accepts(m, self.targets)]
             if passing:
                 top = (index + min(passing)) // 2
             elif at is None:

@@ -177,3 +177,12 @@ def test_an_image_failing_in_a_later_round_is_listed_and_the_rest_decide(sample,
     photo = next(c for c in outcome.document["classes"] if c["name"] == "photo")
     assert photo["image_count"] == len([j for j in sample.jobs if j.class_name == "photo"]) - 1
     assert photo["setting"] is not None
+
+
+def test_a_grid_without_the_current_default(sample):
+    """The current default (q85 k64 4:2:0) lies outside this grid in quality, cutoff and mode."""
+    grid = Grid(qualities=tuple(range(30, 81, 2)), cutoffs=(28,), subsamplings=("4:4:4",))
+    exhaustive = run_sweep(sample.jobs, sample.classes, grid=replace(grid, coarse_step=1),
+                           runner=make_runner(workers=1), refine=False, strategy="grid")
+    searched = run_sweep(sample.jobs, sample.classes, grid=grid, runner=make_runner(workers=1))
+    assert decisions(searched.document) == decisions(redecide(exhaustive.curves, sample.classes))
