@@ -124,9 +124,9 @@ class Scan:
 
     table : ndarray, shape (E,), int8 — ``2 * group + (0 for DC, 1 for AC)``; group 0 is luma, 1 chroma.
     symbol : ndarray, shape (E,), int16 — DC category, or AC run/size RRRRSSSS (ZRL 0xF0, EOB 0x00).
-    extra : ndarray, shape (E,), int64 — the magnitude bits' value (T.81 F.1.2.1: v, or v - 1 masked,
+    extra : ndarray, shape (E,), int32 — the magnitude bits' value (T.81 F.1.2.1: v, or v - 1 masked,
         for negative v).
-    extra_len : ndarray, shape (E,), int64 — how many magnitude bits (the category SSSS).
+    extra_len : ndarray, shape (E,), int8 — how many magnitude bits (the category SSSS).
     groups : int — how many Huffman table pairs the scan uses.
     """
 
@@ -167,8 +167,31 @@ def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: 
         The Huffman table pair of each component (libjpeg: 0 for Y, 1 for Cb and Cr).
     """
     blocks = np.ascontiguousarray(blocks)
-    n = blocks.shape[0]
     component = np.asarray(component)
+    n = blocks.shape[0]
+    if n <= _SCAN_CHUNK:
+        return _scan_part(blocks, component, group_of_component, np.zeros(len(group_of_component), np.int64))
+    # In chunks of blocks (events stay in order; each component's DC prediction carries over), so the
+    # temporaries stay bounded on large images.
+    parts, previous = [], np.zeros(len(group_of_component), np.int64)
+    for lo in range(0, n, _SCAN_CHUNK):
+        chunk, comp = blocks[lo : lo + _SCAN_CHUNK], component[lo : lo + _SCAN_CHUNK]
+        parts.append(_scan_part(chunk, comp, group_of_component, previous.copy()))
+        for c in range(len(group_of_component)):
+            idx = np.flatnonzero(comp == c)
+            if idx.size:
+                previous[c] = chunk[idx[-1], 0]
+    return Scan(*(np.concatenate([getattr(p, name) for p in parts]) for name in ("table", "symbol", "extra", "extra_len")),
+                parts[0].groups)
+
+
+_SCAN_CHUNK = 1 << 15
+
+
+def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tuple[int, ...],
+               previous_dc: np.ndarray) -> Scan:
+    """:func:`scan_symbols` of consecutive blocks, each component's DC predicted from ``previous_dc``."""
+    n = blocks.shape[0]
     group = np.asarray(group_of_component, dtype=np.int64)[component]
 
     # DC differences per component, in coding order.
@@ -176,7 +199,7 @@ def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: 
     diff = np.empty(n, dtype=np.int64)
     for c in range(len(group_of_component)):
         idx = np.flatnonzero(component == c)
-        diff[idx] = np.diff(dc[idx], prepend=0)
+        diff[idx] = np.diff(dc[idx], prepend=previous_dc[c])
     dc_size = magnitude_category(diff)
 
     # AC non-zeros: a flat index of the contiguous (N, 64) array splits into block (>> 6) and
@@ -203,14 +226,18 @@ def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: 
         (rows[zrl_owner].astype(np.int64) << 8) | (2 * pos[zrl_owner]),
         (eob_rows.astype(np.int64) << 8) | 255,
     ])
-    table = np.concatenate([2 * group, 2 * group[rows] + 1, 2 * group[rows[zrl_owner]] + 1, 2 * group[eob_rows] + 1])
-    symbol = np.concatenate([dc_size, ((run & 15) << 4) | size, np.full(zrl_owner.size, ZRL), np.full(eob_rows.size, EOB)])
-    extra = np.concatenate([_magnitude_bits(diff, dc_size), _magnitude_bits(values, size),
-                            np.zeros(zrl_owner.size + eob_rows.size, np.int64)])
-    extra_len = np.concatenate([dc_size, size, np.zeros(zrl_owner.size + eob_rows.size, np.int64)])
+    # Narrow types from here on (8 bytes per event instead of 32), so large images stay in memory.
+    table = np.concatenate([(2 * group).astype(np.int8), (2 * group[rows] + 1).astype(np.int8),
+                            (2 * group[rows[zrl_owner]] + 1).astype(np.int8), (2 * group[eob_rows] + 1).astype(np.int8)])
+    symbol = np.concatenate([dc_size.astype(np.int16), (((run & 15) << 4) | size).astype(np.int16),
+                             np.full(zrl_owner.size, ZRL, np.int16), np.full(eob_rows.size, EOB, np.int16)])
+    extra = np.concatenate([_magnitude_bits(diff, dc_size).astype(np.int32), _magnitude_bits(values, size).astype(np.int32),
+                            np.zeros(zrl_owner.size + eob_rows.size, np.int32)])
+    extra_len = np.concatenate([dc_size.astype(np.int8), size.astype(np.int8),
+                                np.zeros(zrl_owner.size + eob_rows.size, np.int8)])
     order = np.argsort(keys, kind="stable")
-    return Scan(table[order].astype(np.int8), symbol[order].astype(np.int16), extra[order],
-                extra_len[order].astype(np.int64), len(set(group_of_component)))
+    del keys
+    return Scan(table[order], symbol[order], extra[order], extra_len[order], len(set(group_of_component)))
 
 
 def block_symbol_stats(blocks: np.ndarray) -> SymbolStats:
@@ -237,6 +264,9 @@ def canonical_codes(bits: tuple[int, ...], huffval: tuple[int, ...], size: int) 
             k += 1
         code <<= 1
     return codes, lengths
+
+
+_EVENT_CHUNK = 1 << 18
 
 
 def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]]) -> tuple[int, int]:
@@ -266,19 +296,27 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
     if np.any(code_len == 0):
         bad = np.unique(sym[code_len == 0]).tolist()
         raise ValueError(f"symbols {bad!r} have no code in the table")
-    field_len = code_len + scan.extra_len
-    field = (codes[t, sym] << scan.extra_len) | scan.extra
+    field_len = code_len + scan.extra_len.astype(np.int64)
     total_bits = int(field_len.sum())
     n_bytes = (total_bits + 7) // 8
     start = np.cumsum(field_len) - field_len
-    # Place each field in a 40-bit window that starts at its first byte.
-    window = field << (40 - (start & 7) - field_len)
-    first = start >> 3
-    contributions = np.empty((5, field.size), dtype=np.float64)
-    for k in range(5):
-        contributions[k] = (window >> (32 - 8 * k)) & 0xFF
-    index = (first[None, :] + np.arange(5)[:, None]).ravel()
-    packed = np.bincount(index, weights=contributions.ravel(), minlength=n_bytes + 5)[:n_bytes]
+    packed = np.zeros(n_bytes + 5, dtype=np.float64)
+    # In chunks of events, so the per-byte contributions (80 bytes per event) stay bounded.
+    for lo in range(0, field_len.size, _EVENT_CHUNK):
+        hi = lo + _EVENT_CHUNK
+        f_len = field_len[lo:hi]
+        field = (codes[t[lo:hi], sym[lo:hi]] << scan.extra_len[lo:hi].astype(np.int64)) | scan.extra[lo:hi]
+        # Place each field in a 40-bit window that starts at its first byte.
+        window = field << (40 - (start[lo:hi] & 7) - f_len)
+        first = start[lo:hi] >> 3
+        base = int(first[0]) if first.size else 0
+        contributions = np.empty((5, field.size), dtype=np.float64)
+        for k in range(5):
+            contributions[k] = (window >> (32 - 8 * k)) & 0xFF
+        index = (first[None, :] - base + np.arange(5)[:, None]).ravel()
+        local = np.bincount(index, weights=contributions.ravel())
+        packed[base : base + local.size] += local
+    packed = packed[:n_bytes]
     if total_bits % 8:
         packed[-1] += (1 << (8 - total_bits % 8)) - 1  # pad with 1-bits
     stuffed = int(np.count_nonzero(packed == 255))

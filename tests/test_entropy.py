@@ -153,3 +153,39 @@ def test_missing_code_is_an_error():
     counts[13] = 1
     with pytest.raises(ValueError, match=r"symbols \[13\] have no code"):
         entropy.coded_bits(counts, entropy.STD_LENGTHS["dc_luma"])
+
+
+def test_entropy_coded_bytes_in_chunks_equal_one_pass(monkeypatch):
+    """Chunking the bit assembly (bounded memory on large images) changes no byte or stuffing count."""
+    import numpy as np
+
+    from dct import entropy
+
+    rng = np.random.default_rng(9)
+    blocks = np.zeros((300, 64), np.int32)
+    blocks[:, :12] = rng.integers(-40, 41, size=(300, 12))
+    blocks[:, 0] = rng.integers(-900, 900, size=300)
+    scan = entropy.scan_symbols(blocks, np.zeros(300, np.int8), (0,))
+    tables = [entropy.canonical_codes(*entropy.optimal_table(scan.counts(t)), 16 if t % 2 == 0 else 256)
+              for t in range(2)]
+    whole = entropy.entropy_coded_bytes(scan, tables)
+    monkeypatch.setattr(entropy, "_EVENT_CHUNK", 7)
+    assert entropy.entropy_coded_bytes(scan, tables) == whole
+
+
+def test_scan_symbols_in_chunks_equal_one_pass(monkeypatch):
+    """Chunking the symbol extraction (DC prediction carried across chunks) changes no event."""
+    import numpy as np
+
+    from dct import entropy
+
+    rng = np.random.default_rng(4)
+    blocks = np.zeros((90, 64), np.int32)
+    blocks[:, :20] = rng.integers(-6, 7, size=(90, 20))
+    blocks[:, 0] = rng.integers(-500, 500, size=90)
+    component = np.tile(np.array([0, 0, 0, 0, 1, 2], np.int8), 15)
+    whole = entropy.scan_symbols(blocks, component, (0, 1, 1))
+    monkeypatch.setattr(entropy, "_SCAN_CHUNK", 7)
+    parts = entropy.scan_symbols(blocks, component, (0, 1, 1))
+    for name in ("table", "symbol", "extra", "extra_len"):
+        np.testing.assert_array_equal(getattr(parts, name), getattr(whole, name))
