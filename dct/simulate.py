@@ -118,12 +118,13 @@ def quantize(coefficients: np.ndarray, table: np.ndarray) -> np.ndarray:
     ndarray, same shape, int32.
     """
     fq, c, r = reciprocal_divisors(table)
-    t = np.asarray(coefficients, dtype=np.int32)
-    mag = np.abs(t)
+    t = np.asarray(coefficients)
+    mag = np.abs(t, dtype=np.int32)
     mag += c
     mag *= fq
     mag >>= r
-    return np.where(t < 0, -mag, mag)
+    np.negative(mag, out=mag, where=t < 0)  # in place: one full-size array, not three
+    return mag
 
 
 def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
@@ -173,7 +174,8 @@ def _scan(luma_q: np.ndarray, chroma_q: tuple[np.ndarray, np.ndarray] | None, su
 def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int) -> np.ndarray:
     """Dequantize zigzag blocks, integer inverse DCT and crop one component to rows x cols; uint8."""
     nby, nbx, _ = q.shape
-    deq = q.reshape(-1, 64)[:, UNZIGZAG] * np.asarray(table_natural, dtype=np.int32).reshape(64)
+    deq = q.reshape(-1, 64)[:, UNZIGZAG]  # a copy, dequantized in place
+    deq *= np.asarray(table_natural, dtype=np.int32).reshape(64)
     deq = deq.reshape(-1, 8, 8)
     blocks = inverse_dct_islow(deq)
     plane = blocks.reshape(nby, nbx, BLOCK, BLOCK).transpose(0, 2, 1, 3).reshape(nby * BLOCK, nbx * BLOCK)
@@ -181,11 +183,12 @@ def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int
 
 
 def _blocks(plane: np.ndarray) -> np.ndarray:
-    """Level-shift and integer-DCT a plane whose sides are multiples of 8: (nby, nbx, 64) int32, zigzag."""
+    """Level-shift and integer-DCT a plane whose sides are multiples of 8: (nby, nbx, 64) int16, zigzag."""
     h, w = plane.shape
-    b = plane.reshape(h // BLOCK, BLOCK, w // BLOCK, BLOCK).transpose(0, 2, 1, 3).astype(np.int32) - 128
+    b = plane.reshape(h // BLOCK, BLOCK, w // BLOCK, BLOCK).transpose(0, 2, 1, 3).astype(np.int16) - np.int16(128)
     coef = forward_dct_islow(b).reshape(h // BLOCK, w // BLOCK, 64)
-    return np.ascontiguousarray(coef[..., ZIGZAG])
+    # int16, as libjpeg's DCTELEM: 8-bit samples give |coefficient| <= 8192 on the x8 scale.
+    return np.ascontiguousarray(coef[..., ZIGZAG], dtype=np.int16)
 
 
 def _nbytes(value) -> int:
@@ -342,7 +345,7 @@ class PreparedImage:
 
         Returns
         -------
-        tuple of ndarray, shape (nby, nbx, 64), int32
+        tuple of ndarray, shape (nby, nbx, 64), int16
             Zigzag order, on libjpeg's scale: 8 times the orthonormal ``C X C^T`` of the
             level-shifted block, rounded by its integer DCT. Chroma blocks are those of the mode's
             downsampled planes.
