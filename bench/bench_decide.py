@@ -23,9 +23,7 @@ from __future__ import annotations
 
 import argparse
 import io
-import json
 import math
-import resource
 import subprocess
 import sys
 import tempfile

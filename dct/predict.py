@@ -30,12 +30,16 @@ with the image beyond ``SAMPLE_BLOCKS`` luma blocks.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .quality import C1, C2
 from .simulate import PreparedImage, quantize, reciprocal_divisors
 from .tables import ZIGZAG, quant_tables
+
+if TYPE_CHECKING:
+    from .search import Forecast
 
 SAMPLE_BLOCKS = 512  # luma blocks the forecasts look at, at most (1 MP: one 16-pixel band in 16)
 _FULL = np.full(64, 255, dtype=np.int32)  # the table a cutoff leaves past position K
