@@ -92,6 +92,12 @@ class Measure:
     edge_ssim: float = 1.0  # dct.damage; the neutral values are for curves made before it existed
     blocking: float = 0.0
 
+    @classmethod
+    def of(cls, point) -> "Measure":
+        """The numbers the decision reads, from an evaluated point (``dct.simulate.SweepPoint``)."""
+        return cls(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
+                   point.edge_ssim, point.blocking)
+
 
 def damage_failures(m: Measure, t: Targets) -> list[str]:
     """The visible-damage checks an image fails: "edge", "blocking" (see dct.damage)."""

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import damage, predict
-from .budget import Targets
+from .budget import Measure, Targets
 from .color import rgb_to_ycbcr
 from .io import ImageRejected, decode_image, encode_jpeg, encode_jpeg_tables, resize_to_width
 from .quality import ReferenceStats
@@ -56,7 +56,7 @@ class ImageResult:
     curves: list[WidthCurve] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     error: str | None = None
-    forecasts: dict = field(default_factory=dict)  # {width: dct.search.Forecast as a dict} (search jobs)
+    forecasts: dict = field(default_factory=dict)  # {width: dct.predict.Forecast as a dict} (search jobs)
 
     def as_dict(self) -> dict:
         d = {
@@ -199,25 +199,18 @@ def evaluate_search(job: SearchJob) -> ImageResult:
         def work(width, prepared: PreparedImage):
             done: dict[Setting, SweepPoint] = {}
             for s in points.get(width, ()):
-                done.setdefault(s, prepared.evaluate(s))
+                if s not in done:
+                    done[s] = prepared.evaluate(s)
             for ladder in ladders.get(width, ()):
                 for s in ladder:
                     point = done.get(s) or prepared.evaluate(s)
                     done[s] = point
-                    if stops_ladder(point_measure(point), job.targets):
+                    if stops_ladder(Measure.of(point), job.targets):
                         break
             forecast = predict.forecast(prepared, job.grid).as_dict() if job.forecast else None
             return list(done.values()), forecast
 
         return _per_width(job, work)
-
-
-def point_measure(point: SweepPoint):
-    """The numbers ``dct.budget`` decides on, from an evaluated point."""
-    from .budget import Measure
-
-    return Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
-                   point.edge_ssim, point.blocking)
 
 
 @dataclass(frozen=True)

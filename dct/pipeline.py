@@ -26,8 +26,9 @@ from typing import Callable, Iterable
 from . import budget, report
 from .budget import targets_for
 from .cache import ResultCache, fingerprint
-from .evaluate import ImageResult, SearchJob, evaluate_image, evaluate_search, point_measure
-from .search import ClassSearch, Forecast
+from .evaluate import ImageResult, SearchJob, evaluate_image, evaluate_search
+from .predict import Forecast
+from .search import ClassSearch
 from .grid import DEFAULT_CURRENT, DEFAULT_GRID, Grid
 from .runner import TaskFailed, make_runner
 from .sampleset import ClassSpec, ImageJob
@@ -133,7 +134,7 @@ def class_tables(results: Iterable[ImageResult], class_name: str, width) -> dict
             continue
         for curve in r.curves:
             if curve.width == width:
-                table[r.key] = {p.setting: point_measure(p) for p in curve.points}
+                table[r.key] = {p.setting: budget.Measure.of(p) for p in curve.points}
     return table
 
 
@@ -341,7 +342,7 @@ def _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel,
                 for curve in r.curves:
                     if curve.width == width:
                         for p in curve.points:
-                            search.add(r.key, p.setting, point_measure(p))
+                            search.add(r.key, p.setting, budget.Measure.of(p))
             searches[(name, width)] = search
     while True:
         asked: dict[str, dict] = {}
@@ -369,7 +370,7 @@ def _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel,
                 search = searches.get((r.class_name, curve.width))
                 if search is not None:
                     for p in curve.points:
-                        search.add(key, p.setting, point_measure(p))
+                        search.add(key, p.setting, budget.Measure.of(p))
     for r in results.values():
         r.forecasts = {}  # working data: the curves hold the exact points only
     return results

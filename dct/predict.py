@@ -30,16 +30,12 @@ with the image beyond ``SAMPLE_BLOCKS`` luma blocks.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .quality import C1, C2
 from .simulate import PreparedImage, quantize, reciprocal_divisors
 from .tables import ZIGZAG, quant_tables
-
-if TYPE_CHECKING:
-    from .search import Forecast
 
 SAMPLE_BLOCKS = 512  # luma blocks the forecasts look at, at most (1 MP: one 16-pixel band in 16)
 _FULL = np.full(64, 255, dtype=np.int32)  # the table a cutoff leaves past position K
@@ -114,13 +110,8 @@ def _cutoff_masks(cutoffs) -> np.ndarray:
 
 
 def _quantize_many(blocks: np.ndarray, tables: np.ndarray) -> np.ndarray:
-    """libjpeg's reciprocal quantization (``dct.simulate.quantize``) of blocks by each table: (nq, n, 64)."""
-    parts = [reciprocal_divisors(t) for t in tables]
-    fq, c, r = (np.stack([p[i] for p in parts])[:, None, :] for i in range(3))
-    mag = np.abs(blocks)[None, :, :] + c
-    mag *= fq
-    mag >>= r
-    return np.where(blocks[None] < 0, -mag, mag)
+    """libjpeg's quantization (``dct.simulate.quantize``) of the blocks by each table: (nq, n, 64)."""
+    return np.stack([quantize(blocks, t) for t in tables])
 
 
 def _terms(blocks: np.ndarray, tables: np.ndarray):
@@ -203,6 +194,55 @@ def quality_tables_zigzag(qualities) -> tuple[np.ndarray, np.ndarray]:
     return luma, chroma
 
 
+@dataclass
+class Forecast:
+    """One image's forecast over a grid at one width (from ``dct.predict.forecast``)."""
+
+    qualities: tuple[int, ...]  # the qualities forecast (the grid's coarse ones); others interpolate
+    cutoffs: tuple[int, ...]
+    subsamplings: tuple[str, ...]
+    luma: np.ndarray  # (nq, nk) forecast luma SSIM
+    chroma: dict  # {subsampling: (cb (nq, nk), cr (nq, nk))}; empty for grayscale
+    bits: dict  # {subsampling: (nq, nk)} forecast entropy-coded bits of the whole image
+    header_bytes: int  # markers and tables, roughly
+    size_qualities: tuple[int, ...] = ()  # where ``bits`` was forecast (default: ``qualities``)
+
+    def as_dict(self) -> dict:
+        return {
+            "qualities": list(self.qualities),
+            "cutoffs": list(self.cutoffs),
+            "subsamplings": list(self.subsamplings),
+            "luma": self.luma.tolist(),
+            "chroma": {s: [cb.tolist(), cr.tolist()] for s, (cb, cr) in self.chroma.items()},
+            "bits": {s: b.tolist() for s, b in self.bits.items()},
+            "header_bytes": self.header_bytes,
+            "size_qualities": list(self.size_qualities),
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Forecast":
+        return cls(
+            tuple(d["qualities"]), tuple(d["cutoffs"]), tuple(d["subsamplings"]), np.asarray(d["luma"]),
+            {s: (np.asarray(v[0]), np.asarray(v[1])) for s, v in d["chroma"].items()},
+            {s: np.asarray(b) for s, b in d["bits"].items()}, int(d["header_bytes"]),
+            tuple(d.get("size_qualities", ())),
+        )
+
+    def column(self, cutoff: int, subsampling: str, qualities) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None, np.ndarray]:
+        """Forecast luma, Cb, Cr SSIM and bytes along ``qualities`` for one combo (interpolated)."""
+        j = self.cutoffs.index(cutoff)
+        qs = np.asarray(qualities, dtype=float)
+        at = np.asarray(self.qualities, dtype=float)
+        luma = np.interp(qs, at, self.luma[:, j])
+        cb = cr = None
+        if self.chroma:
+            cb = np.interp(qs, at, self.chroma[subsampling][0][:, j])
+            cr = np.interp(qs, at, self.chroma[subsampling][1][:, j])
+        size_at = np.asarray(self.size_qualities or self.qualities, dtype=float)
+        size = self.header_bytes + np.interp(qs, size_at, self.bits[subsampling][:, j]) / 8.0
+        return luma, cb, cr, size
+
+
 SYMBOL_BITS = 4.5  # a (run, size) Huffman code, on average: the proxy's shape, not its scale
 EOB_BITS = 3.0
 HEADER_BYTES = 620  # markers, two quantization tables and four Huffman tables, roughly
@@ -240,13 +280,11 @@ def sample_bits(sample: Sample, quality: int, cutoff: int, subsampling: str) -> 
 
 def forecast(prepared: PreparedImage, grid) -> "Forecast":
     """Forecast luma and chroma SSIM and bytes for every cutoff and subsampling of ``grid`` at its
-    coarse qualities (``dct.search.Forecast`` interpolates between them).
+    coarse qualities (:class:`Forecast` interpolates between them).
 
     Bytes: the proxy (nonzeros and magnitude bits) gives the shape along quality; at ``ANCHORS``
     qualities per combo the sample is entropy-coded exactly, and the ratio between the two,
     interpolated along quality, scales the proxy. Sample bits are scaled to the whole image."""
-    from .search import Forecast
-
     qualities = list(grid.coarse_qualities())
     fine_qualities = list(grid.sorted_qualities)
     subsamplings = tuple(grid.subsamplings)

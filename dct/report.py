@@ -135,8 +135,7 @@ def build_document(*, decisions, results, rejected, current: Setting, grid: dict
             point = next((p for p in curve.points if p.setting == shown), None)
             if point is None:
                 continue
-            m = budget.Measure(point.estimated_bytes, point.ssim, point.ssim_cb, point.ssim_cr, point.ssim_local,
-                               point.edge_ssim, point.blocking)
+            m = budget.Measure.of(point)
             images.append(
                 {
                     "path": key,

@@ -36,6 +36,7 @@ import numpy as np
 
 from . import budget
 from .grid import Grid
+from .predict import Forecast
 from .tables import Setting
 
 CLEAR_MARGIN = 0.004  # exact slack below -this: fails at every lower quality too (dips are smaller)
@@ -47,55 +48,6 @@ BYTES_TOLERANCE = 0.08  # forecast bytes are trusted to be within this share of 
 DESCEND_MARGIN = 0.015  # ladders go below their top only for images forecast this close to failing
 SEEN_CHECKS = ("ssim", "ssim_cb", "ssim_cr")  # what a forecast predicts; the rest it takes from exact points
 MAX_ROUNDS = 12  # then every remaining quality of an unresolved combo is evaluated exactly
-
-
-@dataclass
-class Forecast:
-    """One image's forecast over a grid at one width (from ``dct.predict.forecast``)."""
-
-    qualities: tuple[int, ...]  # the qualities forecast (the grid's coarse ones); others interpolate
-    cutoffs: tuple[int, ...]
-    subsamplings: tuple[str, ...]
-    luma: np.ndarray  # (nq, nk) forecast luma SSIM
-    chroma: dict  # {subsampling: (cb (nq, nk), cr (nq, nk))}; empty for grayscale
-    bits: dict  # {subsampling: (nq, nk)} forecast entropy-coded bits of the whole image
-    header_bytes: int  # markers and tables, roughly
-    size_qualities: tuple[int, ...] = ()  # where ``bits`` was forecast (default: ``qualities``)
-
-    def as_dict(self) -> dict:
-        return {
-            "qualities": list(self.qualities),
-            "cutoffs": list(self.cutoffs),
-            "subsamplings": list(self.subsamplings),
-            "luma": self.luma.tolist(),
-            "chroma": {s: [cb.tolist(), cr.tolist()] for s, (cb, cr) in self.chroma.items()},
-            "bits": {s: b.tolist() for s, b in self.bits.items()},
-            "header_bytes": self.header_bytes,
-            "size_qualities": list(self.size_qualities),
-        }
-
-    @classmethod
-    def from_dict(cls, d: dict) -> "Forecast":
-        return cls(
-            tuple(d["qualities"]), tuple(d["cutoffs"]), tuple(d["subsamplings"]), np.asarray(d["luma"]),
-            {s: (np.asarray(v[0]), np.asarray(v[1])) for s, v in d["chroma"].items()},
-            {s: np.asarray(b) for s, b in d["bits"].items()}, int(d["header_bytes"]),
-            tuple(d.get("size_qualities", ())),
-        )
-
-    def column(self, cutoff: int, subsampling: str, qualities) -> tuple[np.ndarray, np.ndarray | None, np.ndarray | None, np.ndarray]:
-        """Forecast luma, Cb, Cr SSIM and bytes along ``qualities`` for one combo (interpolated)."""
-        j = self.cutoffs.index(cutoff)
-        qs = np.asarray(qualities, dtype=float)
-        at = np.asarray(self.qualities, dtype=float)
-        luma = np.interp(qs, at, self.luma[:, j])
-        cb = cr = None
-        if self.chroma:
-            cb = np.interp(qs, at, self.chroma[subsampling][0][:, j])
-            cr = np.interp(qs, at, self.chroma[subsampling][1][:, j])
-        size_at = np.asarray(self.size_qualities or self.qualities, dtype=float)
-        size = self.header_bytes + np.interp(qs, size_at, self.bits[subsampling][:, j]) / 8.0
-        return luma, cb, cr, size
 
 
 def forecast_slack(luma, cb, cr, targets: budget.Targets) -> np.ndarray:
