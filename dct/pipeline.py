@@ -18,6 +18,7 @@ without computing again (:func:`redecide`).
 
 from __future__ import annotations
 
+import contextlib
 import tempfile
 import threading
 from dataclasses import dataclass, field, replace
@@ -310,12 +311,11 @@ def _search(jobs, classes, current, grid, runner, cache, tracker, cancel, counte
     round is one job per image that still has something to evaluate. None when cancelled."""
     from .runner import LocalPoolRunner
 
-    if isinstance(runner, LocalPoolRunner):
-        # The pool's workers share prepared images here (private to this user, removed at the end).
-        with tempfile.TemporaryDirectory(prefix="eightfold-prepared-") as store:
-            return _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel, counters,
-                                  plain_only, store)
-    return _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only, None)
+    # A local pool's workers share prepared images in a folder private to this user, removed at the
+    # end; other runners' workers keep them in memory only.
+    shared = isinstance(runner, LocalPoolRunner)
+    with tempfile.TemporaryDirectory(prefix="eightfold-prepared-") if shared else contextlib.nullcontext() as store:
+        return _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only, store)
 
 
 def _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel, counters, plain_only, store):
