@@ -92,40 +92,65 @@ def _evaluate(job) -> ImageResult:
 
 
 def _per_width(job, work) -> ImageResult:
-    """Decode a job's image once and run ``work(width, prepared) -> (points, forecast)`` per width."""
+    """Decode a job's image once and run ``work(width, prepared) -> (points, forecast)`` per width.
+
+    A search round that comes back to an image whose prepared widths this worker (or the sweep's
+    store) still has does not decode it again: the decode's warnings travel with them.
+    """
     result = ImageResult(job.key, job.class_name)
-    try:
-        decoded = decode_image(job.source, background=job.background)
-    except ImageRejected as exc:
-        result.error = str(exc)
-        return result
-    result.warnings.extend(decoded.warnings)
-    for width in job.widths:
-        pixels = resize_to_width(decoded.pixels, width)
-        h, w = pixels.shape[:2]
-        if h < MIN_SIDE or w < MIN_SIDE:
-            result.error = f"image too small: {w}x{h} pixels; SSIM needs at least {MIN_SIDE}x{MIN_SIDE}"
-            result.curves = []
+    kept = [_kept(job, width) for width in job.widths]
+    decoded = None
+    if any(k is None for k in kept):
+        try:
+            decoded = decode_image(job.source, background=job.background)
+        except ImageRejected as exc:
+            result.error = str(exc)
             return result
-        prepared = _prepared(job, width, pixels)
-        points, forecast = work(width, prepared)
-        _keep(job, width, prepared)
-        result.curves.append(WidthCurve(width, w, h, points))
+        warnings = list(decoded.warnings)
+    else:
+        warnings = list(kept[0].warnings)
+    result.warnings.extend(warnings)
+    for width, entry in zip(job.widths, kept):
+        if entry is None:
+            pixels = resize_to_width(decoded.pixels, width)
+            h, w = pixels.shape[:2]
+            if h < MIN_SIDE or w < MIN_SIDE:
+                result.error = f"image too small: {w}x{h} pixels; SSIM needs at least {MIN_SIDE}x{MIN_SIDE}"
+                result.curves = []
+                return result
+            entry = _Kept(PreparedImage(pixels), warnings)
+        _remember(job, width, entry)
+        points, forecast = work(width, entry.prepared)
+        _share(job, width, entry)
+        result.curves.append(WidthCurve(width, entry.prepared.width, entry.prepared.height, points))
         if forecast is not None:
             result.forecasts[width] = forecast
     return result
 
 
 # A worker keeps its most recent prepared images: a class search comes back to the same images in
-# rounds, and with one worker (or few images per worker) their transforms are then done once. A local
-# pool's workers also share them through the sweep's private store folder, so a round that lands an
-# image on another worker loads its transforms (milliseconds) instead of redoing them.
+# rounds, and with one worker (or few images per worker) their decode and transforms are then done
+# once. A local pool's workers also share them through the sweep's private store folder, so a round
+# that lands an image on another worker loads its transforms (milliseconds) instead of redoing them.
 PREPARED_CACHE_PIXELS = 12_000_000
 _prepared_cache: dict = {}
 
 
+@dataclass
+class _Kept:
+    prepared: PreparedImage
+    warnings: list[str]  # the decode's, reported again by every round that reuses it
+
+
 def _prepared_key(job, width) -> tuple:
-    source = job.source if isinstance(job.source, str) else hashlib.sha1(job.source).hexdigest()
+    if isinstance(job.source, str):
+        try:  # a file replaced under the same name is a different image
+            st = os.stat(job.source)
+            source = (job.source, st.st_size, st.st_mtime_ns)
+        except OSError:
+            source = (job.source,)
+    else:
+        source = hashlib.sha1(job.source).hexdigest()
     return (source, width, tuple(job.background))
 
 
@@ -137,35 +162,37 @@ def _stored_path(job, width) -> str | None:
     return os.path.join(store, hashlib.sha1(repr(_prepared_key(job, width)).encode()).hexdigest() + ".pickle")
 
 
-def _keep(job, width, prepared: PreparedImage) -> None:
+def _share(job, width, entry: _Kept) -> None:
     """Share a prepared image with the sweep's other workers (written once, atomically)."""
     path = _stored_path(job, width)
     if path is None or os.path.exists(path):
         return
     tmp = f"{path}.{os.getpid()}.tmp"
     with open(tmp, "wb") as f:
-        pickle.dump(prepared, f, protocol=pickle.HIGHEST_PROTOCOL)
+        pickle.dump(entry, f, protocol=pickle.HIGHEST_PROTOCOL)
     os.replace(tmp, path)
 
 
-def _prepared(job, width, pixels: np.ndarray) -> PreparedImage:
-    key = _prepared_key(job, width)
-    hit = _prepared_cache.pop(key, None)
+def _kept(job, width) -> _Kept | None:
+    """This worker's (or the sweep store's) prepared image for a job's width, if any."""
+    hit = _prepared_cache.get(_prepared_key(job, width))
     if hit is None:
         path = _stored_path(job, width)
         if path is not None and os.path.exists(path):
             with open(path, "rb") as f:
                 hit = pickle.load(f)  # written by this sweep's own workers (dct.pipeline)
-    if hit is not None and hit.height == pixels.shape[0] and hit.width == pixels.shape[1]:
-        _prepared_cache[key] = hit  # most recent last
-        return hit
-    prepared = PreparedImage(pixels)
-    _prepared_cache[key] = prepared
+    return hit
+
+
+def _remember(job, width, entry: _Kept) -> None:
+    key = _prepared_key(job, width)
+    _prepared_cache.pop(key, None)
+    _prepared_cache[key] = entry  # most recent last
     # Within the pixel budget; the newest entry is kept even alone over it (a huge image's next
     # round then reuses its transforms instead of redoing them).
-    while len(_prepared_cache) > 1 and sum(p.height * p.width for p in _prepared_cache.values()) > PREPARED_CACHE_PIXELS:
+    while len(_prepared_cache) > 1 and sum(e.prepared.height * e.prepared.width
+                                           for e in _prepared_cache.values()) > PREPARED_CACHE_PIXELS:
         _prepared_cache.pop(next(iter(_prepared_cache)))
-    return prepared
 
 
 @dataclass(frozen=True)

@@ -236,7 +236,9 @@ class SweepPoint:
 
     setting: Setting | None  # None when explicit tables were simulated
     estimated_bytes: int  # whole file, optimal Huffman tables (libjpeg optimize=True), byte exact
-    standard_bytes: int  # whole file, the standard Annex K Huffman tables, byte exact
+    # Whole file with the standard Annex K Huffman tables, byte exact; None where not asked for
+    # (sweeps leave it out: no decision reads it, and it is a second full bit assembly).
+    standard_bytes: int | None
     ssim: float  # luma of the decoded RGB against the original's luma
     ssim_cb: float | None  # None for grayscale
     ssim_cr: float | None
@@ -265,7 +267,7 @@ class SweepPoint:
         return cls(
             setting=Setting.from_dict(d),
             estimated_bytes=int(d["estimated_bytes"]),
-            standard_bytes=int(d["standard_bytes"]),
+            standard_bytes=None if d.get("standard_bytes") is None else int(d["standard_bytes"]),
             ssim=float(d["ssim"]),
             ssim_cb=None if d.get("ssim_cb") is None else float(d["ssim_cb"]),
             ssim_cr=None if d.get("ssim_cr") is None else float(d["ssim_cr"]),
@@ -449,8 +451,13 @@ class PreparedImage:
         tables: tuple[np.ndarray, np.ndarray] | None = None,
         subsampling: str | None = None,
         want_arrays: bool = False,
+        standard: bool | None = None,
     ) -> SweepPoint | Simulation:
-        """Simulate one setting (or explicit tables with a subsampling mode)."""
+        """Simulate one setting (or explicit tables with a subsampling mode).
+
+        ``standard`` also sizes the file with the standard Huffman tables (``standard_bytes``); by
+        default only with ``want_arrays``.
+        """
         if tables is None:
             if setting is None:
                 raise ValueError("give a Setting or explicit tables")
@@ -473,14 +480,14 @@ class PreparedImage:
                 seen_luma = color.decoded_luma(luma, *chroma.planes)
         scan = self._scan(luma_t, chroma_t, subsampling)
         optimal = self._file_size(scan, True)
-        standard = self._file_size(scan, False)
+        standard_total = self._file_size(scan, False).total if (want_arrays if standard is None else standard) else None
         # The visible-damage statistics (dct.damage) read the luma planes and the SSIM map.
         luma_ssim = self._luma_reference().compare(seen_luma, want_map=True)
         seen = self._damage_reference().measure(seen_luma, luma_ssim.ssim_map)
         fields = dict(
             setting=setting,
             estimated_bytes=optimal.total,
-            standard_bytes=standard.total,
+            standard_bytes=standard_total,
             ssim=luma_ssim.ssim,
             ssim_cb=None if chroma is None else chroma.ssim_cb.ssim,
             ssim_cr=None if chroma is None else chroma.ssim_cr.ssim,
