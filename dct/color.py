@@ -87,10 +87,15 @@ def rgb_to_ycbcr(rgb: np.ndarray) -> np.ndarray:
     """
     rgb = np.asarray(rgb)
     out = np.empty((3,) + rgb.shape[:2], dtype=np.uint8)
-    out[0] = _weighted(rgb, _Y_WEIGHTS, ONE_HALF)
-    out[1] = _weighted(rgb, _CB_WEIGHTS, CBCR_OFFSET + ONE_HALF - 1)
-    out[2] = _weighted(rgb, _CR_WEIGHTS, CBCR_OFFSET + ONE_HALF - 1)
+    for a in range(0, rgb.shape[0], _CONVERT_ROWS):  # int32 temporaries a band of rows at a time
+        band = rgb[a : a + _CONVERT_ROWS]
+        out[0, a : a + _CONVERT_ROWS] = _weighted(band, _Y_WEIGHTS, ONE_HALF)
+        out[1, a : a + _CONVERT_ROWS] = _weighted(band, _CB_WEIGHTS, CBCR_OFFSET + ONE_HALF - 1)
+        out[2, a : a + _CONVERT_ROWS] = _weighted(band, _CR_WEIGHTS, CBCR_OFFSET + ONE_HALF - 1)
     return out
+
+
+_CONVERT_ROWS = 256
 
 
 def ycbcr_to_rgb(y: np.ndarray, cb: np.ndarray, cr: np.ndarray) -> np.ndarray:
@@ -208,17 +213,36 @@ def upsample(plane: np.ndarray, h_factor: int, v_factor: int, height: int, width
     -------
     ndarray, shape (height, width), uint8
     """
-    x = np.asarray(plane, dtype=np.int32)
     if h_factor == 1 and v_factor == 1:
         return np.asarray(plane, dtype=np.uint8)[:height, :width]
+    src = np.asarray(plane)
+    out = np.empty((height, width), dtype=np.uint8)
+    # Band by band of input rows, each with a one-row halo (the vertical filter's neighbours), so the
+    # int16 temporaries stay bounded on large images; every output row is computed as in one pass.
+    rows_out = 2 if v_factor == 2 else 1
+    for a in range(0, src.shape[0], _UPSAMPLE_BAND):
+        top = a * rows_out
+        if top >= height:
+            break
+        b = min(a + _UPSAMPLE_BAND, src.shape[0])
+        lo, hi = max(a - 1, 0), min(b + 1, src.shape[0])
+        band = _fancy_rows(src[lo:hi].astype(np.int16), v_factor)[(a - lo) * rows_out : (b - lo) * rows_out]
+        out[top : top + band.shape[0]] = band[: height - top, :width]
+    return out
+
+
+_UPSAMPLE_BAND = 128  # input rows per band
+
+
+def _fancy_rows(x: np.ndarray, v_factor: int) -> np.ndarray:
+    """Fancy upsampling of whole rows (int16 in; edges replicated), uint8 out, full width."""
     if v_factor == 1:  # 4:2:2: (3 * nearer + further + {1, 2}) >> 2 across each row
         even, odd = _fancy_axis(x, 1, (1, 2))
-        out = _interleave(even >> 2, odd >> 2, 1)
-    else:  # 4:2:0: column sums 3 * nearer + further, then across with {8, 7} over 16
-        above = np.concatenate([x[:1], x[:-1]], axis=0)
-        below = np.concatenate([x[1:], x[-1:]], axis=0)
-        three = 3 * x
-        rows = _interleave(three + above, three + below, 0)  # (2h, w) column sums
-        even, odd = _fancy_axis(rows, 1, (8, 7))
-        out = _interleave(even >> 4, odd >> 4, 1)
-    return out[:height, :width].astype(np.uint8)
+        return _interleave(even >> 2, odd >> 2, 1).astype(np.uint8)
+    # 4:2:0: column sums 3 * nearer + further, then across with {8, 7} over 16 (at most 4088: int16)
+    above = np.concatenate([x[:1], x[:-1]], axis=0)
+    below = np.concatenate([x[1:], x[-1:]], axis=0)
+    three = 3 * x
+    rows = _interleave(three + above, three + below, 0)  # (2h, w) column sums
+    even, odd = _fancy_axis(rows, 1, (8, 7))
+    return _interleave(even >> 4, odd >> 4, 1).astype(np.uint8)

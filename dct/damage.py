@@ -60,6 +60,7 @@ HALO_RADIUS = 4  # px: smooth areas start this far from an edge (ringing there i
 FLAT_RANGE = 8.0  # levels: a raw 5x5 range at most this is "smooth" (block steps show on it)
 BLOCK = 8  # the DCT block side (ITU-T T.81)
 EDGE_PERCENTILE = 2.0
+_BAND_ROWS = 256  # rows per band of the blocking statistic
 MIN_PIXELS = 48  # fewer edge pixels (or smooth boundary pairs) than this: the statistic is neutral
 # Budget defaults, calibrated on tests/damage_set (README, "The visible-damage check").
 DEFAULT_EDGE_FLOOR = 0.92
@@ -126,7 +127,9 @@ class EdgeReference:
     def __init__(self, reference: np.ndarray):
         ref = _plane(reference, "reference")
         self.shape = ref.shape
-        self.plane = ref
+        raw = np.asarray(reference)
+        # Kept as given when 8-bit (a quarter of float32's memory); steps convert band by band.
+        self.plane = raw if raw.dtype == np.uint8 else ref
         smooth = cv2.GaussianBlur(ref, (0, 0), EDGE_SMOOTH_SIGMA, borderType=cv2.BORDER_REFLECT)
         square3 = np.ones((3, 3), np.uint8)
         strength = cv2.dilate(smooth, square3) - cv2.erode(smooth, square3)
@@ -158,6 +161,12 @@ class EdgeReference:
         err = d - self.plane
         return np.abs(np.diff(err, axis=1)), np.abs(np.diff(err, axis=0))
 
+    @property
+    def edge_index(self) -> np.ndarray:
+        """Flat indices of the strong-edge neighbourhood, sorted: where :meth:`measure` reads the
+        SSIM map (``dct.quality.ReferenceStats.compare(at=...)`` gathers just these)."""
+        return self._edge_idx
+
     def measure(self, distorted: np.ndarray, ssim_map: np.ndarray) -> DamageResult:
         """Edge SSIM and blocking of a distorted plane.
 
@@ -165,31 +174,50 @@ class EdgeReference:
         ----------
         distorted : ndarray, shape (H, W)
             The decoded luma, 0..255.
-        ssim_map : ndarray, shape (H, W)
-            The SSIM map of ``distorted`` against the reference (``dct.quality``, ``want_map=True``).
+        ssim_map : ndarray, shape (H, W), or shape (E,)
+            The SSIM map of ``distorted`` against the reference (``dct.quality``, ``want_map=True``),
+            or only its values at :attr:`edge_index`.
 
         Returns
         -------
         DamageResult
         """
         m = np.asarray(ssim_map)
-        if m.shape != self.shape:
+        gathered = m.ndim == 1
+        if m.shape != (self._edge_idx.shape if gathered else self.shape):
             raise ValueError(f"ssim_map has shape {m.shape!r}, the reference {self.shape!r}")
         edge_ssim = 1.0
         if self._edge_idx.size >= MIN_PIXELS:
-            values = m.reshape(-1)[self._edge_idx].astype(np.float64)
+            values = (m if gathered else m.reshape(-1)[self._edge_idx]).astype(np.float64)
             edge_ssim = min(1.0, float(np.percentile(values, EDGE_PERCENTILE)))
         blocking = 0.0
         if self._boundary_count >= MIN_PIXELS:
-            b_sum = b_n = i_sum = i_n = 0.0
-            for steps, (across, inside) in zip(self._steps(distorted), self._pairs):
-                flat = steps.reshape(-1)
-                b_sum += float(flat[across].sum(dtype=np.float64))
-                b_n += across.size
-                i_sum += float(flat[inside].sum(dtype=np.float64))
-                i_n += inside.size
-            blocking = b_sum / b_n - (i_sum / i_n if i_n else 0.0)
+            blocking = self._blocking(distorted)
         return DamageResult(edge_ssim=edge_ssim, blocking=blocking)
+
+    def _blocking(self, distorted: np.ndarray) -> float:
+        """Mean error step across block boundaries minus inside blocks, over smooth pixel pairs;
+        band by band of rows, so the float32 error planes stay bounded on large images."""
+        d = np.asarray(distorted)
+        if d.shape != self.shape:
+            raise ValueError(f"distorted plane has shape {d.shape!r}, the reference {self.shape!r}")
+        h, w = self.shape
+        sums = np.zeros(4)  # across-boundary and inside-block sums: column pairs, row pairs
+        for r0 in range(0, h, _BAND_ROWS):
+            r1 = min(r0 + _BAND_ROWS, h)
+            rows_end = min(r1 + 1, h)  # one more row for the vertical steps of the band's last row
+            err = d[r0:rows_end].astype(np.float32) - self.plane[r0:rows_end]
+            col_steps = np.abs(np.diff(err[: r1 - r0], axis=1)).reshape(-1)
+            row_steps = np.abs(np.diff(err, axis=0)).reshape(-1)
+            for k, (steps, pairs, width) in enumerate(((col_steps, self._pairs[0], w - 1), (row_steps, self._pairs[1], w))):
+                limit = (r1 if width == w - 1 else min(r1, h - 1)) * width
+                for j, idx in enumerate(pairs):
+                    lo, hi = np.searchsorted(idx, [r0 * width, limit])
+                    sums[2 * k + j] += float(steps[idx[lo:hi] - r0 * width].sum(dtype=np.float64))
+        (across_cols, inside_cols), (across_rows, inside_rows) = self._pairs
+        b_n = across_cols.size + across_rows.size
+        i_n = inside_cols.size + inside_rows.size
+        return (sums[0] + sums[2]) / b_n - ((sums[1] + sums[3]) / i_n if i_n else 0.0)
 
     def worst_spot(self, distorted: np.ndarray, ssim_map: np.ndarray, check: str, *, size: int = 64) -> DamageSpot | None:
         """The size x size window where ``check`` ("edge" or "blocking") is worst, or None.

@@ -169,18 +169,25 @@ def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: 
     blocks = np.ascontiguousarray(blocks)
     component = np.asarray(component)
     n = blocks.shape[0]
-    if n <= _SCAN_CHUNK:
-        return _scan_part(blocks, component, group_of_component, np.zeros(len(group_of_component), np.int64))
-    # In chunks of blocks (events stay in order; each component's DC prediction carries over), so the
-    # temporaries stay bounded on large images.
+    # In chunks of blocks, so the temporaries stay bounded on large images.
+    return scan_chunks(((blocks[lo : lo + _SCAN_CHUNK], component[lo : lo + _SCAN_CHUNK])
+                        for lo in range(0, max(n, 1), _SCAN_CHUNK)), group_of_component)
+
+
+def scan_chunks(chunks, group_of_component: tuple[int, ...]) -> Scan:
+    """:func:`scan_symbols` of a scan given as consecutive pieces ``(blocks, component)`` in coding
+    order: events stay in order and each component's DC prediction carries over between pieces, so
+    the whole scan's blocks never need to exist at once."""
     parts, previous = [], np.zeros(len(group_of_component), np.int64)
-    for lo in range(0, n, _SCAN_CHUNK):
-        chunk, comp = blocks[lo : lo + _SCAN_CHUNK], component[lo : lo + _SCAN_CHUNK]
+    for chunk, comp in chunks:
+        chunk = np.ascontiguousarray(chunk)
         parts.append(_scan_part(chunk, comp, group_of_component, previous.copy()))
         for c in range(len(group_of_component)):
             idx = np.flatnonzero(comp == c)
             if idx.size:
                 previous[c] = chunk[idx[-1], 0]
+    if len(parts) == 1:
+        return parts[0]
     return Scan(*(np.concatenate([getattr(p, name) for p in parts]) for name in ("table", "symbol", "extra", "extra_len")),
                 parts[0].groups)
 
@@ -291,31 +298,36 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
     lens = np.zeros((len(tables), 256), dtype=np.int64)
     for t, (c, l) in enumerate(tables):
         codes[t, : c.size], lens[t, : l.size] = c, l
-    t, sym = scan.table.astype(np.intp), scan.symbol.astype(np.intp)
-    code_len = lens[t, sym]
-    if np.any(code_len == 0):
-        bad = np.unique(sym[code_len == 0]).tolist()
-        raise ValueError(f"symbols {bad!r} have no code in the table")
-    field_len = code_len + scan.extra_len.astype(np.int64)
-    total_bits = int(field_len.sum())
+    # The length first, from the symbol histogram (no per-event arrays of the whole scan).
+    used = np.bincount(scan.table.astype(np.intp) * 256 + scan.symbol, minlength=lens.size)[: lens.size]
+    missing = (used > 0) & (lens.ravel() == 0)
+    if np.any(missing):
+        raise ValueError(f"symbols {sorted({int(i) % 256 for i in np.flatnonzero(missing)})!r} have no code in the table")
+    total_bits = int((used * lens.ravel()).sum()) + int(scan.extra_len.sum(dtype=np.int64))
     n_bytes = (total_bits + 7) // 8
-    start = np.cumsum(field_len) - field_len
-    packed = np.zeros(n_bytes + 5, dtype=np.float64)
-    # In chunks of events, so the per-byte contributions (80 bytes per event) stay bounded.
-    for lo in range(0, field_len.size, _EVENT_CHUNK):
+    packed = np.zeros(n_bytes + 5, dtype=np.uint8)  # disjoint bits: a byte's contributions sum to <= 255
+    offset = 0  # bits written before the chunk
+    # In chunks of events, so the per-event and per-byte temporaries (80 bytes per event) stay bounded.
+    for lo in range(0, scan.table.size, _EVENT_CHUNK):
         hi = lo + _EVENT_CHUNK
-        f_len = field_len[lo:hi]
-        field = (codes[t[lo:hi], sym[lo:hi]] << scan.extra_len[lo:hi].astype(np.int64)) | scan.extra[lo:hi]
+        t, sym = scan.table[lo:hi].astype(np.intp), scan.symbol[lo:hi].astype(np.intp)
+        extra_len = scan.extra_len[lo:hi].astype(np.int64)
+        f_len = lens[t, sym] + extra_len
+        start = np.cumsum(f_len)
+        start -= f_len
+        start += offset
+        offset += int(f_len.sum())
+        field = (codes[t, sym] << extra_len) | scan.extra[lo:hi]
         # Place each field in a 40-bit window that starts at its first byte.
-        window = field << (40 - (start[lo:hi] & 7) - f_len)
-        first = start[lo:hi] >> 3
+        window = field << (40 - (start & 7) - f_len)
+        first = start >> 3
         base = int(first[0]) if first.size else 0
         contributions = np.empty((5, field.size), dtype=np.float64)
         for k in range(5):
             contributions[k] = (window >> (32 - 8 * k)) & 0xFF
         index = (first[None, :] - base + np.arange(5)[:, None]).ravel()
         local = np.bincount(index, weights=contributions.ravel())
-        packed[base : base + local.size] += local
+        packed[base : base + local.size] += local.astype(np.uint8)
     packed = packed[:n_bytes]
     if total_bits % 8:
         packed[-1] += (1 << (8 - total_bits % 8)) - 1  # pad with 1-bits

@@ -110,15 +110,17 @@ def _per_width(job, work) -> ImageResult:
     else:
         warnings = list(kept[0].warnings)
     result.warnings.extend(warnings)
-    for width, entry in zip(job.widths, kept):
-        if entry is None:
+    for i, width in enumerate(job.widths):
+        if kept[i] is None:
             pixels = resize_to_width(decoded.pixels, width)
             h, w = pixels.shape[:2]
             if h < MIN_SIDE or w < MIN_SIDE:
                 result.error = f"image too small: {w}x{h} pixels; SSIM needs at least {MIN_SIDE}x{MIN_SIDE}"
-                result.curves = []
                 return result
-            entry = _Kept(PreparedImage(pixels), warnings)
+            kept[i] = _Kept(PreparedImage(pixels), warnings)
+            del pixels
+    del decoded  # the prepared planes are all the work needs: the decoded RGB's memory goes back now
+    for width, entry in zip(job.widths, kept):
         _remember(job, width, entry)
         points, forecast = work(width, entry.prepared)
         _share(job, width, entry)

@@ -147,7 +147,8 @@ class ReferenceStats:
         for s in range(0, h, STRIP):
             yield s, min(s + STRIP, h)
 
-    def compare(self, distorted: np.ndarray, *, want_map: bool = False, want_local: bool = True) -> "SsimResult":
+    def compare(self, distorted: np.ndarray, *, want_map: bool = False, want_local: bool = True,
+                at: np.ndarray | None = None) -> "SsimResult":
         """SSIM of a distorted plane against this reference.
 
         Parameters
@@ -157,6 +158,9 @@ class ReferenceStats:
             Also return the full SSIM map (H, W), float32 (``step`` 1 only).
         want_local : bool
             Compute the local statistic (False leaves it NaN and skips the tile means).
+        at : ndarray of int, sorted, optional
+            Flat pixel indices whose map values to return (``values_at``, float32): what a caller
+            reads of the map without keeping the whole map (``step`` 1 only).
 
         Returns
         -------
@@ -165,12 +169,18 @@ class ReferenceStats:
             LOCAL_PERCENTILE of 16x16 tile means of the full-resolution map, whose tile means are
             kept in ``tile_means``), PSNR, and the map when asked for.
         """
-        y = np.asarray(distorted, dtype=np.float32)
+        y = np.asarray(distorted)  # converted to float32 strip by strip
+        if y.dtype not in (np.uint8, np.float32):
+            y = y.astype(np.float32)
         if y.shape != self.shape:
             raise ValueError(f"distorted plane has shape {y.shape!r}, the reference {self.shape!r}")
         step = self.step
-        if want_map and step != 1:
+        if (want_map or at is not None) and step != 1:
             raise ValueError("the SSIM map needs step=1")
+        gathered = []
+        if at is not None:
+            at = np.asarray(at)
+            bounds = np.searchsorted(at, [s * self.shape[1] for s, _ in self._strips()] + [y.size])
         h, w = self.shape
         ssim_map = np.empty(self.shape, dtype=np.float32) if want_map else None
         # Interior samples (the mean excludes a RADIUS-wide border, as scikit-image crops).
@@ -179,14 +189,14 @@ class ReferenceStats:
         total, count = 0.0, 0
         tiles = []
         sq_err = 0.0
-        for s, e in self._strips():
+        for number, (s, e) in enumerate(self._strips()):
             # Eq. (13) rewritten in the error e = y - x, which is small: with sigma_xy = sigma_x^2 +
             # sigma_xe and sigma_y^2 = sigma_x^2 + 2 sigma_xe + sigma_e^2, the luminance factor is
             # n1 / (n1 + mu_e^2) with n1 = 2 mu_x mu_y + C1, and the contrast-structure factor is
             # n2 / (n2 + sigma_e^2) with n2 = 2 sigma_x^2 + 2 sigma_xe + C2. Filtering e, e^2 and
             # (x - 128) e avoids the float32 cancellation of filtering y^2 and x y directly.
             xe = _rows_with_halo(self.plane, s, e).astype(np.float32)
-            es = _rows_with_halo(y, s, e) - xe
+            es = _rows_with_halo(y, s, e).astype(np.float32) - xe
             xe -= 128.0
             xe *= es
             ue = _filter(es)[::step, ::step]
@@ -217,6 +227,8 @@ class ReferenceStats:
             strip = n1  # eq. (13) at the sampled pixels of rows s..e
             if ssim_map is not None:
                 ssim_map[s:e] = strip
+            if at is not None:
+                gathered.append(strip.reshape(-1)[at[bounds[number] : bounds[number + 1]] - s * w])
             r0, r1 = max(lo, first), min(hi, -(-(h - RADIUS) // step))
             if r1 > r0:
                 inner = strip[r0 - lo : r1 - lo, col0:col1]
@@ -224,7 +236,7 @@ class ReferenceStats:
                 count += inner.size
             if step == 1 and want_local:
                 tiles.append(_tile_means(strip))
-            d = (y[s:e] - self.plane[s:e].astype(np.float32)).ravel()
+            d = (y[s:e].astype(np.float32) - self.plane[s:e].astype(np.float32)).ravel()
             sq_err += float(np.dot(d, d))
         tile_means = np.concatenate(tiles, axis=0) if tiles else None
         return SsimResult(
@@ -233,6 +245,7 @@ class ReferenceStats:
             psnr=psnr_from_mse(sq_err / (h * w)),
             ssim_map=ssim_map,
             tile_means=tile_means,
+            values_at=np.concatenate(gathered) if at is not None else None,
         )
 
 
@@ -250,9 +263,10 @@ def _tile_means(strip: np.ndarray) -> np.ndarray:
 class SsimResult:
     """SSIM of one distorted plane: mean score, local floor statistic, PSNR and optionally the map."""
 
-    __slots__ = ("ssim", "local", "psnr", "ssim_map", "tile_means")
+    __slots__ = ("ssim", "local", "psnr", "ssim_map", "tile_means", "values_at")
 
-    def __init__(self, *, ssim, local, psnr, ssim_map, tile_means):
+    def __init__(self, *, ssim, local, psnr, ssim_map, tile_means, values_at=None):
+        self.values_at = values_at
         self.ssim = ssim
         self.local = local
         self.psnr = psnr

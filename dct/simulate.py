@@ -109,22 +109,30 @@ def quantize(coefficients: np.ndarray, table: np.ndarray) -> np.ndarray:
 
     Parameters
     ----------
-    coefficients : ndarray, shape (..., 64), int32 — on the integer DCT's x8 scale.
+    coefficients : ndarray, shape (..., 64), integer — on the integer DCT's x8 scale.
     table : ndarray, shape (8, 8) or (64,) — quantization table entries 1..255, in the same order as
         the coefficients' last axis (natural, or both zigzag).
 
     Returns
     -------
-    ndarray, same shape, int32.
+    ndarray, same shape, int16 (libjpeg's JCOEF: 8-bit samples give values within +-1024).
     """
     fq, c, r = reciprocal_divisors(table)
     t = np.asarray(coefficients)
-    mag = np.abs(t, dtype=np.int32)
-    mag += c
-    mag *= fq
-    mag >>= r
-    np.negative(mag, out=mag, where=t < 0)  # in place: one full-size array, not three
-    return mag
+    out = np.empty(t.shape, dtype=np.int16)
+    flat_in, flat_out = t.reshape(-1, t.shape[-1]), out.reshape(-1, t.shape[-1])
+    for s in range(0, flat_in.shape[0], _QUANTIZE_CHUNK):  # int32 products, a chunk at a time
+        part = flat_in[s : s + _QUANTIZE_CHUNK]
+        mag = np.abs(part, dtype=np.int32)
+        mag += c
+        mag *= fq
+        mag >>= r
+        np.negative(mag, out=mag, where=part < 0)
+        flat_out[s : s + _QUANTIZE_CHUNK] = mag
+    return out
+
+
+_QUANTIZE_CHUNK = 1 << 16  # blocks
 
 
 def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
@@ -155,31 +163,57 @@ def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
 
 
 def _scan(luma_q: np.ndarray, chroma_q: tuple[np.ndarray, np.ndarray] | None, subsampling: str) -> entropy.Scan:
-    """The file's single scan: blocks interleaved MCU by MCU (Y blocks, then Cb, then Cr), zigzag."""
+    """The file's single scan: blocks interleaved MCU by MCU (Y blocks, then Cb, then Cr), zigzag.
+
+    Assembled band of MCU rows by band, so the interleaved copy never holds the whole image."""
     if chroma_q is None:  # one component: a non-interleaved scan of the real blocks in raster order
         y = luma_q.reshape(-1, 64)
         return entropy.scan_symbols(y, np.zeros(y.shape[0], np.int8), (0,))
     h, v = SAMPLING_FACTORS[subsampling]
-    y = _coding_order(luma_q, h, v)
-    mcus = y.shape[0] // (h * v)
     per_mcu = h * v + 2
-    blocks = np.empty((mcus, per_mcu, 64), dtype=np.int32)
-    blocks[:, : h * v] = y.reshape(mcus, h * v, 64)
-    blocks[:, h * v] = chroma_q[0].reshape(-1, 64)
-    blocks[:, h * v + 1] = chroma_q[1].reshape(-1, 64)
-    component = np.tile(np.array([0] * (h * v) + [1, 2], np.int8), mcus)
-    return entropy.scan_symbols(blocks.reshape(-1, 64), component, (0, 1, 1))
+    mcu_rows, mcu_cols = chroma_q[0].shape[:2]
+    band = max(1, _SCAN_BAND_BLOCKS // (mcu_cols * per_mcu))
+
+    def pieces():
+        for my in range(0, mcu_rows, band):
+            y = _coding_order(luma_q[my * v : (my + band) * v], h, v)
+            mcus = y.shape[0] // (h * v)
+            blocks = np.empty((mcus, per_mcu, 64), dtype=luma_q.dtype)
+            blocks[:, : h * v] = y.reshape(mcus, h * v, 64)
+            blocks[:, h * v] = chroma_q[0][my : my + band].reshape(-1, 64)
+            blocks[:, h * v + 1] = chroma_q[1][my : my + band].reshape(-1, 64)
+            component = np.tile(np.array([0] * (h * v) + [1, 2], np.int8), mcus)
+            yield blocks.reshape(-1, 64), component
+
+    return entropy.scan_chunks(pieces(), (0, 1, 1))
+
+
+_SCAN_BAND_BLOCKS = 1 << 15  # blocks per band of MCU rows
 
 
 def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int) -> np.ndarray:
-    """Dequantize zigzag blocks, integer inverse DCT and crop one component to rows x cols; uint8."""
+    """Dequantize zigzag blocks, integer inverse DCT and crop one component to rows x cols; uint8.
+
+    Block row by block row in chunks, so no full-size dequantized copy is made."""
     nby, nbx, _ = q.shape
-    deq = q.reshape(-1, 64)[:, UNZIGZAG]  # a copy, dequantized in place
-    deq *= np.asarray(table_natural, dtype=np.int32).reshape(64)
-    deq = deq.reshape(-1, 8, 8)
-    blocks = inverse_dct_islow(deq)
-    plane = blocks.reshape(nby, nbx, BLOCK, BLOCK).transpose(0, 2, 1, 3).reshape(nby * BLOCK, nbx * BLOCK)
-    return plane[:rows, :cols]
+    table = np.asarray(table_natural, dtype=np.int16).reshape(64)  # q * Q stays within +-1024 + Q
+    plane = np.empty((rows, cols), dtype=np.uint8)
+    step = max(1, _DECODE_CHUNK // nbx)
+    for by in range(0, nby, step):
+        top = by * BLOCK
+        if top >= rows:
+            break
+        band = q[by : by + step]
+        deq = band.reshape(-1, 64)[:, UNZIGZAG]  # a copy, dequantized in place
+        deq *= table
+        blocks = inverse_dct_islow(deq.reshape(-1, 8, 8))
+        n = band.shape[0]
+        pixels = blocks.reshape(n, nbx, BLOCK, BLOCK).transpose(0, 2, 1, 3).reshape(n * BLOCK, nbx * BLOCK)
+        plane[top : top + n * BLOCK] = pixels[: rows - top, :cols]
+    return plane
+
+
+_DECODE_CHUNK = 1 << 14  # blocks per inverse-DCT chunk
 
 
 def _blocks(plane: np.ndarray) -> np.ndarray:
@@ -205,7 +239,7 @@ class _Recent:
     """A small cache of the most recently used entries, bounded in count and in bytes (a large image
     keeps fewer entries, so a sweep's memory stays bounded)."""
 
-    def __init__(self, size: int, max_bytes: int = 48 << 20):
+    def __init__(self, size: int, max_bytes: int = 24 << 20):
         self.size = size
         self.max_bytes = max_bytes
         self._items: OrderedDict = OrderedDict()
@@ -482,8 +516,11 @@ class PreparedImage:
         optimal = self._file_size(scan, True)
         standard_total = self._file_size(scan, False).total if (want_arrays if standard is None else standard) else None
         # The visible-damage statistics (dct.damage) read the luma planes and the SSIM map.
-        luma_ssim = self._luma_reference().compare(seen_luma, want_map=True)
-        seen = self._damage_reference().measure(seen_luma, luma_ssim.ssim_map)
+        # A sweep point needs only the map's values next to edges, not the whole map.
+        edges = self._damage_reference()
+        luma_ssim = self._luma_reference().compare(seen_luma, want_map=want_arrays,
+                                                   at=None if want_arrays else edges.edge_index)
+        seen = edges.measure(seen_luma, luma_ssim.ssim_map if want_arrays else luma_ssim.values_at)
         fields = dict(
             setting=setting,
             estimated_bytes=optimal.total,

@@ -52,3 +52,16 @@ def test_downsample_bias_alternates():
     # down, then up, then down along a row (jcsample.c's h2v2 rule; checked end to end in test_exact).
     plane = np.tile(np.array([[0, 1, 0, 1, 0, 1, 0, 1]], np.uint8), (2, 1))  # each 2x2 sums to 2
     assert downsample(plane, 2, 2).tolist() == [[0, 1, 0, 1]]
+
+
+def test_upsampling_in_bands_equals_one_pass(monkeypatch):
+    """Fancy upsampling runs band by band of rows on large planes (bounded memory); with tiny bands
+    on an odd-sized plane every output sample must equal the one-band result."""
+    import sys
+
+    color = sys.modules["dct.color"]
+    plane = np.ascontiguousarray(rgb_to_ycbcr(data.coffee())[1][:61:2, :97:2])  # 31 x 49
+    whole = {(h, v): upsample(plane, h, v, 61 if v == 2 else 31, 97) for h, v in ((2, 2), (2, 1))}
+    monkeypatch.setattr(color, "_UPSAMPLE_BAND", 3)
+    for (h, v), expected in whole.items():
+        np.testing.assert_array_equal(upsample(plane, h, v, expected.shape[0], expected.shape[1]), expected)

@@ -154,3 +154,25 @@ def test_visible_damage_check_accepts_most_undamaged_crops(labelled):
     assert share >= 0.8
     textures = [(r, m) for r, m in clean if r["category"] in ("fine grain", "skin", "foliage")]
     assert textures and all(accepts(m, t) for _, m in textures)
+
+
+def test_blocking_in_bands_and_gathered_edge_values_equal_the_whole_plane(monkeypatch):
+    """The blocking statistic runs band by band of rows, and a sweep reads the SSIM map only at the
+    edge pixels: both must give what the whole-plane computation gives (scikit-image's astronaut)."""
+    from skimage import data
+
+    from dct.color import rgb_to_ycbcr
+    from dct.quality import ReferenceStats
+
+    ref = rgb_to_ycbcr(data.astronaut())[0][:203, :301]
+    sim = simulate(np.stack([ref] * 3, axis=-1), 30, "4:4:4")
+    decoded = sim.reconstructed[..., 0]
+    edges = damage.EdgeReference(ref)
+    full_map = ReferenceStats(ref).compare(decoded, want_map=True).ssim_map
+    whole = edges.measure(decoded, full_map)
+    monkeypatch.setattr(damage, "_BAND_ROWS", 7)
+    gathered = ReferenceStats(ref).compare(decoded, at=edges.edge_index).values_at
+    banded = edges.measure(decoded, gathered)
+    assert banded.edge_ssim == whole.edge_ssim
+    assert banded.blocking == pytest.approx(whole.blocking, abs=1e-12)
+    assert whole.blocking > 0.0 and whole.edge_ssim < 1.0  # the comparison is not between neutral values

@@ -158,3 +158,22 @@ def test_bad_input(rgb, kwargs, message):
     args.update(kwargs)
     with pytest.raises(ValueError, match=message):
         dct.simulate(rgb, args["quality"], args["subsampling"], args["cutoff"])
+
+
+@pytest.mark.parametrize("sub", ["4:4:4", "4:2:2", "4:2:0"])
+def test_bands_and_chunks_give_libjpegs_file_and_pixels(monkeypatch, sub):
+    """Large images are quantized, decoded and scanned in bands (bounded memory); forcing tiny bands
+    on an odd-sized crop (partial MCUs at the right and bottom) must still give Pillow/libjpeg's
+    file size byte for byte and its decoded pixels sample for sample."""
+    sim_module = __import__("sys").modules["dct.simulate"]
+    img = np.ascontiguousarray(data.coffee()[5:228, 3:301])  # 298 x 223: partial MCUs both ways
+    setting = dct.Setting(70, 64, sub)
+    monkeypatch.setattr(sim_module, "_QUANTIZE_CHUNK", 5)
+    monkeypatch.setattr(sim_module, "_DECODE_CHUNK", 3)
+    monkeypatch.setattr(sim_module, "_SCAN_BAND_BLOCKS", 1)
+    sim = dct.PreparedImage(img).evaluate(setting, want_arrays=True)
+    luma, chroma = setting.tables()
+    data_bytes = pillow_encode(img, luma, chroma, sub)
+    assert sim.estimated_bytes == len(data_bytes)
+    assert sim.standard_bytes == len(pillow_encode(img, luma, chroma, sub, optimize=False))
+    np.testing.assert_array_equal(sim.reconstructed, np.asarray(Image.open(io.BytesIO(data_bytes)).convert("RGB")))
