@@ -108,6 +108,33 @@ def _boundary_masks(shape: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
     return across_cols, across_rows
 
 
+def _masks(ref: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The strong-edge neighbourhood and the smooth area of a reference luma plane (float32)."""
+    smooth = cv2.GaussianBlur(ref, (0, 0), EDGE_SMOOTH_SIGMA, borderType=cv2.BORDER_REFLECT)
+    square3 = np.ones((3, 3), np.uint8)
+    strength = cv2.dilate(smooth, square3) - cv2.erode(smooth, square3)
+    core = (strength >= EDGE_STRENGTH).astype(np.uint8)
+    edges = cv2.dilate(core, _disk(EDGE_RADIUS)).astype(bool)
+    near = cv2.dilate(core, _disk(HALO_RADIUS)).astype(bool)
+    square5 = np.ones((5, 5), np.uint8)
+    flat = (cv2.dilate(ref, square5) - cv2.erode(ref, square5)) <= FLAT_RANGE
+    return edges, flat & ~near
+
+
+# Rows on each side of a band that the masks read: the blur's 4 sigma, the 3x3 range, the halo disk.
+_MASK_HALO = 4 * int(math.ceil(EDGE_SMOOTH_SIGMA)) + 1 + max(EDGE_RADIUS, HALO_RADIUS) + 2
+
+
+def _across_cols(w: int) -> np.ndarray:
+    """Which column pairs (c, c+1) straddle a block boundary."""
+    return (np.arange(w - 1) % BLOCK) == BLOCK - 1
+
+
+def _across_rows(r0: int, r1: int, h: int) -> np.ndarray:
+    """Which row pairs (r, r+1), r in r0..min(r1, h-1), straddle a block boundary."""
+    return (np.arange(r0, min(r1, h - 1)) % BLOCK) == BLOCK - 1
+
+
 class EdgeReference:
     """Edge and smooth-area masks of a reference luma plane, reused for every setting.
 
@@ -126,32 +153,38 @@ class EdgeReference:
 
     def __init__(self, reference: np.ndarray):
         ref = _plane(reference, "reference")
-        self.shape = ref.shape
+        self.shape = h, w = ref.shape
         raw = np.asarray(reference)
         # Kept as given when 8-bit (a quarter of float32's memory); steps convert band by band.
         self.plane = raw if raw.dtype == np.uint8 else ref
-        smooth = cv2.GaussianBlur(ref, (0, 0), EDGE_SMOOTH_SIGMA, borderType=cv2.BORDER_REFLECT)
-        square3 = np.ones((3, 3), np.uint8)
-        strength = cv2.dilate(smooth, square3) - cv2.erode(smooth, square3)
-        core = (strength >= EDGE_STRENGTH).astype(np.uint8)
-        self.edges = cv2.dilate(core, _disk(EDGE_RADIUS)).astype(bool)
-        near = cv2.dilate(core, _disk(HALO_RADIUS)).astype(bool)
-        square5 = np.ones((5, 5), np.uint8)
-        flat = (cv2.dilate(ref, square5) - cv2.erode(ref, square5)) <= FLAT_RANGE
-        self.smooth = flat & ~near
+        self.edges = np.empty(self.shape, dtype=bool)
+        self.smooth = np.empty(self.shape, dtype=bool)
+        # Band by band of rows with a halo wider than the filters reach, so the float32 temporaries
+        # stay bounded on large images; the masks are those of one pass over the whole plane.
+        for r0 in range(0, h, _BAND_ROWS):
+            r1 = min(r0 + _BAND_ROWS, h)
+            lo, hi = max(r0 - _MASK_HALO, 0), min(r1 + _MASK_HALO, h)
+            edges, smooth = _masks(np.asarray(self.plane[lo:hi], dtype=np.float32))
+            self.edges[r0:r1], self.smooth[r0:r1] = edges[r0 - lo : r1 - lo], smooth[r0 - lo : r1 - lo]
         self._edge_idx = np.flatnonzero(self.edges).astype(np.int32)  # int32: half the memory
-        # Neighbour pairs with both pixels smooth, split into across-boundary and inside-block.
-        across_cols, across_rows = _boundary_masks(self.shape)
-        pair_cols = self.smooth[:, 1:] & self.smooth[:, :-1]
-        pair_rows = self.smooth[1:, :] & self.smooth[:-1, :]
-        def where(mask):
-            return np.flatnonzero(mask).astype(np.int32)
+        # How many neighbour pairs with both pixels smooth straddle a block boundary, and how many
+        # lie inside a block (the pairs themselves are taken from the mask band by band).
+        across = inside = 0
+        for r0, r1, pair_cols, pair_rows in self._smooth_pairs():
+            b = int(pair_cols[:, _across_cols(w)].sum()) + int(pair_rows[_across_rows(r0, r1, h)].sum())
+            across += b
+            inside += int(pair_cols.sum()) + int(pair_rows.sum()) - b
+        self._pair_counts = (across, inside)
+        self._boundary_count = across
 
-        self._pairs = (
-            (where(pair_cols & across_cols), where(pair_cols & ~across_cols)),
-            (where(pair_rows & across_rows), where(pair_rows & ~across_rows)),
-        )
-        self._boundary_count = sum(b.size for b, _ in self._pairs)
+    def _smooth_pairs(self):
+        """(r0, r1, column pairs (r1-r0, W-1), row pairs (rows r0.. of the (H-1, W) pairs)), bool,
+        where both pixels are smooth; band by band of rows."""
+        h = self.shape[0]
+        for r0 in range(0, h, _BAND_ROWS):
+            r1 = min(r0 + _BAND_ROWS, h)
+            s = self.smooth[r0 : min(r1 + 1, h)]
+            yield r0, r1, s[: r1 - r0, 1:] & s[: r1 - r0, :-1], s[1:] & s[:-1]
 
     def _steps(self, distorted: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """|step| of the coding error between horizontal and vertical neighbours, float32."""
@@ -202,22 +235,27 @@ class EdgeReference:
         if d.shape != self.shape:
             raise ValueError(f"distorted plane has shape {d.shape!r}, the reference {self.shape!r}")
         h, w = self.shape
-        sums = np.zeros(4)  # across-boundary and inside-block sums: column pairs, row pairs
-        for r0 in range(0, h, _BAND_ROWS):
-            r1 = min(r0 + _BAND_ROWS, h)
+        across_cols = _across_cols(w)
+        b_sum = all_sum = 0.0
+        for r0, r1, pair_cols, pair_rows in self._smooth_pairs():
             rows_end = min(r1 + 1, h)  # one more row for the vertical steps of the band's last row
             err = d[r0:rows_end].astype(np.float32) - self.plane[r0:rows_end]
-            col_steps = np.abs(np.diff(err[: r1 - r0], axis=1)).reshape(-1)
-            row_steps = np.abs(np.diff(err, axis=0)).reshape(-1)
-            for k, (steps, pairs, width) in enumerate(((col_steps, self._pairs[0], w - 1), (row_steps, self._pairs[1], w))):
-                limit = (r1 if width == w - 1 else min(r1, h - 1)) * width
-                for j, idx in enumerate(pairs):
-                    lo, hi = np.searchsorted(idx, [r0 * width, limit])
-                    sums[2 * k + j] += float(steps[idx[lo:hi] - r0 * width].sum(dtype=np.float64))
-        (across_cols, inside_cols), (across_rows, inside_rows) = self._pairs
-        b_n = across_cols.size + across_rows.size
-        i_n = inside_cols.size + inside_rows.size
-        return (sums[0] + sums[2]) / b_n - ((sums[1] + sums[3]) / i_n if i_n else 0.0)
+            col_steps = np.abs(np.diff(err[: r1 - r0], axis=1))
+            row_steps = np.abs(np.diff(err, axis=0))
+            across_rows = _across_rows(r0, r1, h)
+            b_sum += float(col_steps[:, across_cols][pair_cols[:, across_cols]].sum(dtype=np.float64))
+            b_sum += float(row_steps[across_rows][pair_rows[across_rows]].sum(dtype=np.float64))
+            all_sum += float(col_steps[pair_cols].sum(dtype=np.float64)) + float(row_steps[pair_rows].sum(dtype=np.float64))
+        b_n, i_n = self._pair_counts
+        return b_sum / b_n - ((all_sum - b_sum) / i_n if i_n else 0.0)
+
+    def _boundary_pairs(self) -> tuple[np.ndarray, np.ndarray]:
+        """Flat indices of the smooth pairs across block boundaries: columns (H, W-1), rows (H-1, W)."""
+        h, w = self.shape
+        across_cols, across_rows = _boundary_masks(self.shape)
+        pair_cols = self.smooth[:, 1:] & self.smooth[:, :-1]
+        pair_rows = self.smooth[1:, :] & self.smooth[:-1, :]
+        return np.flatnonzero(pair_cols & across_cols), np.flatnonzero(pair_rows & across_rows)
 
     def worst_spot(self, distorted: np.ndarray, ssim_map: np.ndarray, check: str, *, size: int = 64) -> DamageSpot | None:
         """The size x size window where ``check`` ("edge" or "blocking") is worst, or None.
@@ -238,7 +276,7 @@ class EdgeReference:
             steps_cols, steps_rows = self._steps(distorted)
             values = np.zeros(self.shape)
             mask = np.zeros(self.shape, dtype=bool)
-            (b_cols, _), (b_rows, _) = self._pairs
+            b_cols, b_rows = self._boundary_pairs()
             vc = np.zeros((h, w - 1)); vc.reshape(-1)[b_cols] = steps_cols.reshape(-1)[b_cols]
             vr = np.zeros((h - 1, w)); vr.reshape(-1)[b_rows] = steps_rows.reshape(-1)[b_rows]
             values[:, :-1] += vc

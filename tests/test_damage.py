@@ -156,9 +156,10 @@ def test_visible_damage_check_accepts_most_undamaged_crops(labelled):
     assert textures and all(accepts(m, t) for _, m in textures)
 
 
-def test_blocking_in_bands_and_gathered_edge_values_equal_the_whole_plane(monkeypatch):
-    """The blocking statistic runs band by band of rows, and a sweep reads the SSIM map only at the
-    edge pixels: both must give what the whole-plane computation gives (scikit-image's astronaut)."""
+def test_bands_and_gathered_edge_values_equal_the_whole_plane(monkeypatch):
+    """The masks and the blocking statistic are computed band by band of rows, and a sweep reads
+    the SSIM map only at the edge pixels: all must give what one whole-plane pass gives
+    (scikit-image's astronaut)."""
     from skimage import data
 
     from dct.color import rgb_to_ycbcr
@@ -171,8 +172,11 @@ def test_blocking_in_bands_and_gathered_edge_values_equal_the_whole_plane(monkey
     full_map = ReferenceStats(ref).compare(decoded, want_map=True).ssim_map
     whole = edges.measure(decoded, full_map)
     monkeypatch.setattr(damage, "_BAND_ROWS", 7)
+    banded_edges = damage.EdgeReference(ref)
+    np.testing.assert_array_equal(banded_edges.edges, edges.edges)
+    np.testing.assert_array_equal(banded_edges.smooth, edges.smooth)
     gathered = ReferenceStats(ref).compare(decoded, at=edges.edge_index).values_at
-    banded = edges.measure(decoded, gathered)
+    banded = banded_edges.measure(decoded, gathered)
     assert banded.edge_ssim == whole.edge_ssim
     assert banded.blocking == pytest.approx(whole.blocking, abs=1e-12)
     assert whole.blocking > 0.0 and whole.edge_ssim < 1.0  # the comparison is not between neutral values
