@@ -232,6 +232,8 @@ def _nbytes(value) -> int:
         return sum(_nbytes(v) for v in value)
     if isinstance(value, _ChromaDecode):
         return _nbytes(value.planes)
+    if isinstance(value, quality.SsimResult):
+        return _nbytes(value.values_at) + _nbytes(value.tile_means)
     return 0
 
 
@@ -260,8 +262,7 @@ class _Recent:
 @dataclass
 class _ChromaDecode:
     planes: tuple[np.ndarray, np.ndarray]  # upsampled Cb, Cr, (H, W) uint8
-    ssim_cb: quality.SsimResult
-    ssim_cr: quality.SsimResult
+    ssim: tuple[float, float] | None = None  # Cb, Cr SSIM, once asked for
 
 
 @dataclass
@@ -350,12 +351,13 @@ class PreparedImage:
         self._chroma_q = _Recent(4)
         self._luma_planes = _Recent(2)
         self._chroma_planes = _Recent(2)
+        self._luma_ssims = _Recent(2)  # (seen luma, SsimResult) per setting: luma_ssim() then evaluate()
         self._damage_ref: damage.EdgeReference | None = None
 
     def __getstate__(self) -> dict:
         # The transforms and reference statistics travel; the per-table caches start empty again.
         state = dict(self.__dict__)
-        for name in ("_luma_q", "_chroma_q", "_luma_planes", "_chroma_planes"):
+        for name in ("_luma_q", "_chroma_q", "_luma_planes", "_chroma_planes", "_luma_ssims"):
             state[name] = _Recent(state[name].size)
         return state
 
@@ -449,11 +451,44 @@ class PreparedImage:
             rows, cols = _ceil_div(self.height, v), _ceil_div(self.width, h)
             planes = [color.upsample(_decode_plane(q, table, rows, cols), h, v, self.height, self.width)
                       for q in self._quantized_chroma(table, subsampling)]
-            ref_cb, ref_cr = self._chroma_reference()
-            return _ChromaDecode((planes[0], planes[1]), ref_cb.compare(planes[0], want_local=False),
-                                 ref_cr.compare(planes[1], want_local=False))
+            return _ChromaDecode((planes[0], planes[1]))
 
         return self._chroma_planes.get((subsampling, table.tobytes()), decode)
+
+    def _chroma_ssim(self, chroma: _ChromaDecode) -> tuple[float, float]:
+        if chroma.ssim is None:
+            ref_cb, ref_cr = self._chroma_reference()
+            chroma.ssim = (ref_cb.compare(chroma.planes[0], want_local=False).ssim,
+                           ref_cr.compare(chroma.planes[1], want_local=False).ssim)
+        return chroma.ssim
+
+    def _seen_luma(self, luma_t: np.ndarray, chroma_t: np.ndarray, subsampling: str) -> tuple:
+        """(luma plane, chroma decode or None, the luma a viewer sees) of one pair of tables."""
+        luma = self._decode_luma(luma_t)
+        if self.grayscale:
+            return luma, None, luma
+        chroma = self._decode_chroma(chroma_t, subsampling)
+        # The luma of the decoded RGB by one table lookup, without the RGB image.
+        return luma, chroma, color.decoded_luma(luma, *chroma.planes)
+
+    def _luma_ssim(self, luma_t: np.ndarray, chroma_t: np.ndarray, subsampling: str):
+        """(seen luma, its SSIM with the local statistic and the map's values next to edges)."""
+        key = (luma_t.tobytes(), chroma_t.tobytes(), subsampling)
+
+        def compare():
+            seen = self._seen_luma(luma_t, chroma_t, subsampling)[2]
+            return seen, self._luma_reference().compare(seen, at=self._damage_reference().edge_index)
+
+        return self._luma_ssims.get(key, compare)
+
+    def luma_ssim(self, setting: Setting) -> float:
+        """The exact luma SSIM of one setting, alone: no sizing, no chroma SSIM, no damage checks.
+
+        The cheap part of :meth:`evaluate` (which then reuses it): enough to see that a setting
+        fails its luma target clearly.
+        """
+        luma_t, chroma_t = setting.tables()
+        return self._luma_ssim(luma_t, chroma_t, setting.subsampling)[1].ssim
 
     def _scan(self, luma_t: np.ndarray, chroma_t: np.ndarray, subsampling: str) -> entropy.Scan:
         chroma_q = None if self.grayscale else self._quantized_chroma(chroma_t, subsampling)
@@ -501,33 +536,28 @@ class PreparedImage:
             luma_t = check_table(tables[0], "luma table")
             chroma_t = check_table(tables[1], "chroma table")
             subsampling = check_subsampling(subsampling or "4:2:0")
-        luma = self._decode_luma(luma_t)
-        if self.grayscale:
-            chroma = None
-            decoded = seen_luma = luma
+        if want_arrays:
+            luma, chroma, _ = self._seen_luma(luma_t, chroma_t, subsampling)
+            decoded = luma if chroma is None else color.ycbcr_to_rgb(luma, *chroma.planes)
+            seen_luma = luma if chroma is None else color.luma(decoded)
+            luma_ssim = self._luma_reference().compare(seen_luma, want_map=True)
         else:
-            chroma = self._decode_chroma(chroma_t, subsampling)
-            if want_arrays:
-                decoded = color.ycbcr_to_rgb(luma, *chroma.planes)
-                seen_luma = color.luma(decoded)
-            else:  # the same luma by one table lookup, without the RGB image
-                seen_luma = color.decoded_luma(luma, *chroma.planes)
+            # A sweep point needs only the map's values next to edges, not the whole map.
+            seen_luma, luma_ssim = self._luma_ssim(luma_t, chroma_t, subsampling)
+            chroma = None if self.grayscale else self._decode_chroma(chroma_t, subsampling)
         scan = self._scan(luma_t, chroma_t, subsampling)
         optimal = self._file_size(scan, True)
         standard_total = self._file_size(scan, False).total if (want_arrays if standard is None else standard) else None
         # The visible-damage statistics (dct.damage) read the luma planes and the SSIM map.
-        # A sweep point needs only the map's values next to edges, not the whole map.
-        edges = self._damage_reference()
-        luma_ssim = self._luma_reference().compare(seen_luma, want_map=want_arrays,
-                                                   at=None if want_arrays else edges.edge_index)
-        seen = edges.measure(seen_luma, luma_ssim.ssim_map if want_arrays else luma_ssim.values_at)
+        seen = self._damage_reference().measure(seen_luma, luma_ssim.ssim_map if want_arrays else luma_ssim.values_at)
+        ssim_cb, ssim_cr = (None, None) if chroma is None else self._chroma_ssim(chroma)
         fields = dict(
             setting=setting,
             estimated_bytes=optimal.total,
             standard_bytes=standard_total,
             ssim=luma_ssim.ssim,
-            ssim_cb=None if chroma is None else chroma.ssim_cb.ssim,
-            ssim_cr=None if chroma is None else chroma.ssim_cr.ssim,
+            ssim_cb=ssim_cb,
+            ssim_cr=ssim_cr,
             ssim_local=luma_ssim.local,
             psnr=luma_ssim.psnr,
             edge_ssim=seen.edge_ssim,
