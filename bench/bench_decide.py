@@ -190,8 +190,9 @@ def main() -> None:
         ours = (Setting.from_dict(c["setting"]), c["estimated_bytes"]) if c["setting"] else None
         print(f"class of {len(photos)} photos, {mp:.2f} MP each, default grid ({len(DEFAULT_GRID.settings())} settings):")
         print(f"  bisection script  {script_time:7.2f} s  ({encodes} encodes)  -> {script_choice.label()} {script_bytes} B")
-        print(f"  eightfold search  {ours_time:7.2f} s  ({outcome.settings_evaluated} exact evaluations, "
-              f"{outcome.evaluated} image passes)  -> {ours[0].label() if ours else None} {ours and ours[1]} B")
+        print(f"  eightfold search  {ours_time:7.2f} s  ({outcome.settings_evaluated} exact evaluations and "
+              f"{outcome.failed_by_luma} luma-only clear failures, {outcome.evaluated} image passes)"
+              f"  -> {ours[0].label() if ours else None} {ours and ours[1]} B")
         print(f"  ratio {script_time / ours_time:.2f}x; decisions agree: {ours == (script_choice, script_bytes)}")
 
     t = time.perf_counter()

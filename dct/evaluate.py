@@ -21,7 +21,7 @@ from .budget import Measure, Targets
 from .color import rgb_to_ycbcr
 from .io import ImageRejected, decode_image, encode_jpeg, encode_jpeg_tables, resize_to_width
 from .quality import ReferenceStats
-from .search import stops_ladder
+from .search import clear_luma_failure, stops_ladder
 from .simulate import MIN_SIDE, PreparedImage, SweepPoint
 from .tables import Setting
 from .threads import single_threaded
@@ -57,6 +57,8 @@ class ImageResult:
     warnings: list[str] = field(default_factory=list)
     error: str | None = None
     forecasts: dict = field(default_factory=dict)  # {width: dct.predict.Forecast as a dict} (search jobs)
+    # {width: [(Setting, luma SSIM), ...]}: search-job settings seen to fail clearly by luma alone
+    failed: dict = field(default_factory=dict)
 
     def as_dict(self) -> dict:
         d = {
@@ -68,12 +70,15 @@ class ImageResult:
         }
         if self.forecasts:
             d["forecasts"] = [{"width": w, "forecast": f} for w, f in self.forecasts.items()]
+        if self.failed:
+            d["failed"] = [{"width": w, "settings": [[s.as_dict(), v] for s, v in pairs]} for w, pairs in self.failed.items()]
         return d
 
     @classmethod
     def from_dict(cls, d: dict) -> "ImageResult":
         return cls(d["key"], d["class"], [WidthCurve.from_dict(c) for c in d["curves"]], list(d["warnings"]), d["error"],
-                   {f["width"]: f["forecast"] for f in d.get("forecasts", [])})
+                   {f["width"]: f["forecast"] for f in d.get("forecasts", [])},
+                   {f["width"]: [(Setting.from_dict(s), float(v)) for s, v in f["settings"]] for f in d.get("failed", [])})
 
 
 def evaluate_image(job) -> ImageResult:
@@ -203,7 +208,9 @@ class SearchJob:
 
     ``forecast`` asks for the coefficient-domain forecast over ``grid``; ``points`` are settings to
     evaluate exactly; each ladder is evaluated from its first setting down and stops at the first
-    clear failure against ``targets`` (nothing below it can pass).
+    clear failure against ``targets`` (nothing below it can pass). A rung of a ladder that is not
+    ``full`` is first checked by its luma SSIM alone: a clear failure there is reported as a verdict
+    (``ImageResult.failed``) without sizing the file or the other checks.
     """
 
     key: str
@@ -215,7 +222,7 @@ class SearchJob:
     grid: object = None  # dct.grid.Grid, for the forecast
     forecast: bool = False
     points: tuple = ()  # ((width, (Setting, ...)), ...)
-    ladders: tuple = ()  # ((width, ((Setting, ...), ...)), ...)
+    ladders: tuple = ()  # ((width, (dct.search.Ladder, ...)), ...)
     store: str | None = None  # a private folder where workers share prepared images (dct.pipeline)
 
 
@@ -225,21 +232,33 @@ def evaluate_search(job: SearchJob) -> ImageResult:
         points = dict(job.points)
         ladders = dict(job.ladders)
 
+        failed: dict = {}
+
         def work(width, prepared: PreparedImage):
             done: dict[Setting, SweepPoint] = {}
+            quick: dict[Setting, float] = {}
             for s in points.get(width, ()):
                 if s not in done:
                     done[s] = prepared.evaluate(s)
             for ladder in ladders.get(width, ()):
-                for s in ladder:
+                for s in ladder.settings:
+                    if s not in done and not ladder.full:
+                        luma = quick.get(s, None) or prepared.luma_ssim(s)
+                        if clear_luma_failure(luma, job.targets):
+                            quick[s] = luma
+                            break
                     point = done.get(s) or prepared.evaluate(s)
                     done[s] = point
                     if stops_ladder(Measure.of(point), job.targets):
                         break
+            if quick:
+                failed[width] = [(s, v) for s, v in quick.items() if s not in done]
             forecast = predict.forecast(prepared, job.grid).as_dict() if job.forecast else None
             return list(done.values()), forecast
 
-        return _per_width(job, work)
+        result = _per_width(job, work)
+        result.failed = {w: pairs for w, pairs in failed.items() if pairs} if result.error is None else {}
+        return result
 
 
 @dataclass(frozen=True)

@@ -47,6 +47,7 @@ class SweepOutcome:
     evaluated: int = 0  # image passes computed in this run
     reused: int = 0  # image passes found in the cache
     settings_evaluated: int = 0  # (image, setting) pairs in the curves, summed over images
+    failed_by_luma: int = 0  # further (image, setting) pairs whose luma SSIM alone failed clearly (search)
     warnings: list[str] = field(default_factory=list)
 
 
@@ -61,7 +62,8 @@ def _job_fingerprint(job) -> str:
                         targets.edge_floor, targets.blocking_limit] if job.ladders else None,
             "grid": job.grid.as_dict() if job.forecast else None,
             "points": [[w, [s.as_dict() for s in ss]] for w, ss in job.points],
-            "ladders": [[w, [[s.as_dict() for s in ladder] for ladder in ls]] for w, ls in job.ladders],
+            "ladders": [[w, [[[s.as_dict() for s in ladder.settings], ladder.full] for ladder in ls]]
+                        for w, ls in job.ladders],
         })
     return fingerprint(
         "evaluate",
@@ -302,6 +304,7 @@ def _outcome(jobs, results, classes, current, grid, rejected, plain_only, counte
         evaluated=counters["evaluated"],
         reused=counters["reused"],
         settings_evaluated=sum(len(c.points) for r in ordered for c in r.curves),
+        failed_by_luma=counters.get("failed_by_luma", 0),
         warnings=[f"{r.key}: {w}" for r in ordered for w in r.warnings],
     )
 
@@ -366,13 +369,19 @@ def _search_rounds(jobs, classes, current, grid, runner, cache, tracker, cancel,
                     search.drop(key)
                 continue
             results[key] = _merge(results[key], r)
+            counters["failed_by_luma"] = counters.get("failed_by_luma", 0) + sum(len(v) for v in r.failed.values())
             for curve in r.curves:
                 search = searches.get((r.class_name, curve.width))
                 if search is not None:
                     for p in curve.points:
                         search.add(key, p.setting, budget.Measure.of(p))
+            for width, pairs in r.failed.items():
+                search = searches.get((r.class_name, width))
+                if search is not None:
+                    for setting, luma in pairs:
+                        search.add_failure(key, setting, luma)
     for r in results.values():
-        r.forecasts = {}  # working data: the curves hold the exact points only
+        r.forecasts, r.failed = {}, {}  # working data: the curves hold the exact points only
     return results
 
 

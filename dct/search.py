@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 import numpy as np
 
@@ -64,6 +65,17 @@ def need_count(n: int, coverage: float) -> int:
     return max(1, int(math.ceil(coverage * n - 1e-9)))
 
 
+class Ladder(NamedTuple):
+    """Settings of one image to evaluate from the first down, stopping at the first clear failure.
+
+    ``full``: every rung needs its full point (the class total needs its bytes); otherwise a rung
+    whose luma SSIM alone fails clearly (:func:`clear_luma_failure`) ends the ladder with that
+    verdict instead of a point."""
+
+    settings: tuple[Setting, ...]
+    full: bool = False
+
+
 @dataclass
 class ComboState:
     cutoff: int
@@ -88,6 +100,8 @@ class ClassSearch:
     grid: Grid
     plain_only: bool = False
     known: dict[str, dict[Setting, budget.Measure]] = field(default_factory=dict)
+    # Settings seen to fail clearly from their luma SSIM alone (no full point): key -> {Setting: SSIM}
+    failed: dict[str, dict[Setting, float]] = field(default_factory=dict)
     combos: dict[tuple[int, str], ComboState] = field(default_factory=dict)
 
     def __post_init__(self):
@@ -96,6 +110,7 @@ class ClassSearch:
         self.need = need_count(len(self.keys), self.targets.coverage)
         for key in self.keys:
             self.known.setdefault(key, {})
+            self.failed.setdefault(key, {})
         for k, s in self.grid.combos():
             if self.plain_only and k != budget.PLAIN_CUTOFF:
                 continue
@@ -110,6 +125,7 @@ class ClassSearch:
             return
         del self.forecasts[key]
         self.known.pop(key, None)
+        self.failed.pop(key, None)
         self.keys = sorted(self.forecasts)
         self.need = need_count(len(self.keys), self.targets.coverage) if self.keys else 0
         for state in self.combos.values():
@@ -117,6 +133,14 @@ class ClassSearch:
 
     def add(self, key: str, setting: Setting, measure: budget.Measure) -> None:
         self.known[key][setting] = measure
+
+    def add_failure(self, key: str, setting: Setting, luma_ssim: float) -> None:
+        """A setting that fails clearly by its luma SSIM (:func:`clear_luma_failure`), seen
+        without the rest of its point."""
+        self.failed[key][setting] = luma_ssim
+
+    def _seen(self, key: str, setting: Setting) -> bool:
+        return setting in self.known[key] or setting in self.failed[key]
 
     # -- calibrated forecasts -----------------------------------------------------------
 
@@ -189,23 +213,30 @@ class ClassSearch:
         n, need = len(self.keys), self.need
         qs = self.qualities.tolist()
         implied: dict[str, set[int]] = {}  # key -> qualities where a clear failure above implies failure
-        per_q = {}  # quality -> (accepting, failing) exact keys
+        per_q = {}  # quality -> (accepting, failing, failing by luma alone) exact keys
         for key in self.keys:
             raw = None
+            clear = []
             for p, m in self.known[key].items():
                 if (p.cutoff, p.subsampling) != combo or p.quality not in qs:
                     continue
                 ok = budget.accepts(m, self.targets)
-                acc, fail = per_q.setdefault(p.quality, (set(), set()))
-                (acc if ok else fail).add(key)
+                per_q.setdefault(p.quality, (set(), set(), set()))[0 if ok else 1].add(key)
                 if not ok and clear_failure(m, self.targets):
-                    if raw is None:
-                        raw = forecast_slack(*self.forecasts[key].column(k, s, qs)[:3], self.targets)
-                    implied.setdefault(key, set()).update(_failing_below(raw, qs.index(p.quality), qs))
+                    clear.append(p.quality)
+            for p in self.failed[key]:
+                if (p.cutoff, p.subsampling) == combo and p.quality in qs:
+                    per_q.setdefault(p.quality, (set(), set(), set()))[2].add(key)
+                    clear.append(p.quality)
+            for quality in clear:
+                if raw is None:
+                    raw = forecast_slack(*self.forecasts[key].column(k, s, qs)[:3], self.targets)
+                implied.setdefault(key, set()).update(_failing_below(raw, qs.index(quality), qs))
         for q in qs if limit is None else qs[: limit + 1]:
-            acc, fail = per_q.get(q, (set(), set()))
-            failing = fail | {key for key, below in implied.items() if q in below}
+            acc, fail, quick = per_q.get(q, (set(), set(), set()))
+            failing = fail | quick | {key for key, below in implied.items() if q in below}
             if len(acc) >= need:
+                # Resolved only with every image's full point there: the class total needs its bytes.
                 if len(acc) + len(fail) == n:
                     return "resolved", q
                 return "complete", q
@@ -221,7 +252,7 @@ class ClassSearch:
 
     # -- the next round -----------------------------------------------------------------
 
-    def requests(self) -> dict[str, list[tuple[Setting, ...]]]:
+    def requests(self) -> dict[str, list["Ladder"]]:
         """Ladders to evaluate next, per image key (empty: the search is done).
 
         Branch and bound over the combos: the cheapest forecast combo is resolved exactly first; then
@@ -282,12 +313,13 @@ class ClassSearch:
                 working.add(min(plain, key=lambda c: (open_combos[c][0], c)))
         else:
             working = set(open_combos)
-        out: dict[str, list[tuple[Setting, ...]]] = {}
+        out: dict[str, list[Ladder]] = {}
         for combo in sorted(working):
             state = self.combos[combo]
             state.rounds += 1
+            full = open_combos[combo][4] == "complete"
             for key, ladder in self._ladders(combo, state, *open_combos[combo][1:]).items():
-                out.setdefault(key, []).append(ladder)
+                out.setdefault(key, []).append(Ladder(ladder, full))
         return out
 
     def _best_exact(self, *, plain: bool) -> int | None:
@@ -308,9 +340,9 @@ class ClassSearch:
         known = self.known
 
         def missing(key, settings):
-            return tuple(x for x in settings if x not in known[key])
+            return tuple(x for x in settings if not self._seen(key, x))
 
-        if kind == "complete":
+        if kind == "complete":  # full points: the class total needs every image's bytes there
             return {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in known[key]}
         if state.rounds > MAX_ROUNDS:  # give up guessing: every affordable quality from here up, exactly
             return {key: m for key in self.keys
@@ -342,7 +374,7 @@ class ClassSearch:
             top = at
             probe = Setting(qs[top], k, s)
             likely = self._likely_failing(slack, top)
-            if not any(probe in known[self.keys[i]] for i in likely):
+            if not any(self._seen(self.keys[i], probe) for i in likely):
                 # First the images most likely to fail at the forecast crossing: if they fail clearly
                 # there, the other images need not be evaluated at it.
                 rungs = {self.keys[i]: [probe] for i in likely}
@@ -355,7 +387,7 @@ class ClassSearch:
                         rungs[self.keys[i]].append(Setting(qs[j], k, s))
         out = {key: m for key, ladder in rungs.items() if (m := missing(key, ladder))}
         if not out:  # the forecast rungs are known: step exactly from the unknown quality
-            out = {key: (Setting(q, k, s),) for key in self.keys if Setting(q, k, s) not in known[key]}
+            out = {key: (Setting(q, k, s),) for key in self.keys if not self._seen(key, Setting(q, k, s))}
         return out
 
     # -- the answer ----------------------------------------------------------------------
@@ -389,6 +421,12 @@ def clear_failure(measure: budget.Measure, targets: budget.Targets) -> bool:
         elif margin < -CLEAR_MARGIN:
             return True
     return False
+
+
+def clear_luma_failure(luma_ssim: float, targets: budget.Targets) -> bool:
+    """A luma SSIM short of the target by more than ``CLEAR_MARGIN``: a clear failure whatever the
+    other checks say (:func:`clear_failure` on the full point would say so too)."""
+    return luma_ssim - targets.target_ssim < -CLEAR_MARGIN
 
 
 def stops_ladder(measure: budget.Measure, targets: budget.Targets) -> bool:
