@@ -243,7 +243,7 @@ def evaluate_search(job: SearchJob) -> ImageResult:
             for ladder in ladders.get(width, ()):
                 for s in ladder.settings:
                     if s not in done and not ladder.full:
-                        luma = quick.get(s, None) or prepared.luma_ssim(s)
+                        luma = prepared.luma_ssim(s)  # evaluate() below reuses it
                         if clear_luma_failure(luma, job.targets):
                             quick[s] = luma
                             break

@@ -17,7 +17,7 @@ from dct.pipeline import class_tables, redecide, run_sweep
 from dct.quality import C1, C2
 from dct.runner import make_runner
 from dct.sampleset import discover
-from dct.simulate import PreparedImage
+from dct.simulate import PreparedImage, SweepPoint
 from dct.tables import ZIGZAG, Setting, quant_tables
 from tests.sets import write_set
 
@@ -186,3 +186,34 @@ def test_a_grid_without_the_current_default(sample):
                            runner=make_runner(workers=1), refine=False, strategy="grid")
     searched = run_sweep(sample.jobs, sample.classes, grid=grid, runner=make_runner(workers=1))
     assert decisions(searched.document) == decisions(redecide(exhaustive.curves, sample.classes))
+
+
+def test_luma_verdicts_are_clear_failures_of_the_full_point(sample, exhaustive, monkeypatch):
+    """Ladders end at a luma-only verdict without the rest of the point: every such verdict must be a
+    clear failure of the full exact point too (so the search learns nothing the full point would
+    not say), and the decision stays the exhaustive one."""
+    from dct.budget import Measure, targets_for
+    from dct.search import ClassSearch, clear_failure
+
+    seen = []
+    original = ClassSearch.add_failure
+
+    def record(self, key, setting, luma):
+        seen.append((key, setting, luma))
+        original(self, key, setting, luma)
+
+    monkeypatch.setattr(ClassSearch, "add_failure", record)
+    searched = run_sweep(sample.jobs, sample.classes, grid=GRID, runner=make_runner(workers=1))
+    assert decisions(searched.document) == decisions(redecide(exhaustive.curves, sample.classes))
+    assert seen and searched.failed_by_luma == len(seen)
+    truth = {d["key"]: d for d in exhaustive.curves["images"]}
+    classes = {j.key: j.class_name for j in sample.jobs}
+    for key, setting, luma in seen:
+        point = next(p for p in truth[key]["curves"][0]["points"] if Setting.from_dict(p) == setting)
+        assert luma == point["ssim"]
+        assert clear_failure(Measure.of(SweepPoint.from_dict(point)), targets_for(sample.classes[classes[key]]))
+
+
+def test_image_results_keep_their_verdicts_through_the_cache_format():
+    result = ImageResult("a.png", "photo", failed={None: [(Setting(40, 20, "4:2:0"), 0.81)]})
+    assert ImageResult.from_dict(result.as_dict()).failed == result.failed
