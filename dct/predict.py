@@ -253,29 +253,37 @@ def _proxy_bits(p: PlanePrediction) -> np.ndarray:
     return SYMBOL_BITS * p.nonzeros + p.magnitude_bits + EOB_BITS * p.blocks
 
 
-def sample_bits(sample: Sample, quality: int, cutoff: int, subsampling: str) -> float:
+def sample_bits(sample: Sample, quality: int, cutoff: int, subsampling: str, *, luma_cache: dict | None = None) -> float:
     """Entropy-coded bits of the sample's blocks at one setting, optimal Huffman tables (no stuffing).
 
     The sample's bands are coded as one scan of their own (luma then chroma per band, not libjpeg's
-    MCU interleaving, which changes only the DC differences at band edges)."""
+    MCU interleaving, which changes only the DC differences at band edges). Luma and chroma have
+    tables of their own, so their bits add up; ``luma_cache`` keeps the luma part, which does not
+    depend on the subsampling mode, between calls."""
+    luma_t, chroma_t = (t.reshape(64)[ZIGZAG] for t in quant_tables(quality, cutoff))
+    key = (quality, cutoff)
+    if luma_cache is not None and key in luma_cache:
+        total = luma_cache[key]
+    else:
+        total = _group_bits([quantize(sample.luma, luma_t)])
+        if luma_cache is not None:
+            luma_cache[key] = total
+    if sample.chroma:
+        total += _group_bits([quantize(b, chroma_t) for b in sample.chroma[subsampling]])
+    return float(total)
+
+
+def _group_bits(blocks: list[np.ndarray]) -> int:
+    """Bits of one table pair's blocks coded as one scan: optimal DC and AC codes plus magnitude bits."""
     from . import entropy
 
-    luma_t, chroma_t = (t.reshape(64)[ZIGZAG] for t in quant_tables(quality, cutoff))
-    parts = [(quantize(sample.luma, luma_t), 0)]
-    if sample.chroma:
-        parts += [(quantize(b, chroma_t), 1) for b in sample.chroma[subsampling]]
-    total = 0
-    for group in (0, 1):
-        blocks = [b for b, g in parts if g == group]
-        if not blocks:
-            continue
-        stacked = np.concatenate(blocks)
-        scan = entropy.scan_symbols(stacked, np.zeros(stacked.shape[0], np.int8), (0,))
-        for table in (0, 1):
-            counts = scan.counts(table)
-            total += entropy.coded_bits(counts, entropy.optimal_code_lengths(counts))
-        total += int(scan.extra_len.sum())
-    return float(total)
+    stacked = np.concatenate(blocks)
+    scan = entropy.scan_symbols(stacked, np.zeros(stacked.shape[0], np.int8), (0,))
+    total = int(scan.extra_len.sum())
+    for table in (0, 1):
+        counts = scan.counts(table)
+        total += entropy.coded_bits(counts, entropy.optimal_code_lengths(counts))
+    return total
 
 
 def forecast(prepared: PreparedImage, grid) -> "Forecast":
@@ -300,7 +308,7 @@ def forecast(prepared: PreparedImage, grid) -> "Forecast":
     chroma_fine = (fine_chroma[:, 0], lower, upper, weight)
     luma = predict_plane(sample.luma, luma_tables, grid.cutoffs, fine=luma_fine)
     anchors = sorted({qualities[round(i * (len(qualities) - 1) / max(1, ANCHORS - 1))] for i in range(ANCHORS)})
-    chroma, total_bits = {}, {}
+    chroma, total_bits, luma_bits = {}, {}, {}
     for s in subsamplings:
         proxy = _proxy_bits(luma)
         if not prepared.grayscale:
@@ -312,7 +320,8 @@ def forecast(prepared: PreparedImage, grid) -> "Forecast":
         scaled = np.empty_like(proxy)
         for j, k in enumerate(grid.cutoffs):
             at = [qualities.index(q) for q in anchors]
-            ratio = [sample_bits(sample, q, k, s) / max(proxy[i, j], 1.0) for q, i in zip(anchors, at)]
+            ratio = [sample_bits(sample, q, k, s, luma_cache=luma_bits) / max(proxy[i, j], 1.0)
+                     for q, i in zip(anchors, at)]
             scaled[:, j] = proxy[:, j] * np.interp(qualities, anchors, ratio)
         total_bits[s] = scaled / sample.fraction
     return Forecast(tuple(fine_qualities), tuple(grid.cutoffs), subsamplings, luma.ssim, chroma, total_bits,
