@@ -294,7 +294,7 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
     -------
     (bytes, stuffed) : total bytes of the segment including stuffing, and the stuffed count.
     """
-    codes = np.zeros((len(tables), 256), dtype=np.int64)
+    codes = np.zeros((len(tables), 256), dtype=np.uint64)
     lens = np.zeros((len(tables), 256), dtype=np.int64)
     for t, (c, l) in enumerate(tables):
         codes[t, : c.size], lens[t, : l.size] = c, l
@@ -305,30 +305,35 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
         raise ValueError(f"symbols {sorted({int(i) % 256 for i in np.flatnonzero(missing)})!r} have no code in the table")
     total_bits = int((used * lens.ravel()).sum()) + int(scan.extra_len.sum(dtype=np.int64))
     n_bytes = (total_bits + 7) // 8
-    packed = np.zeros(n_bytes + 5, dtype=np.uint8)  # disjoint bits: a byte's contributions sum to <= 255
+    # Big-endian 32-bit words of the stream; the fields' bits never overlap, so adding their
+    # contributions assembles the words.
+    words = np.zeros(total_bits // 32 + 2, dtype=np.uint32)
     offset = 0  # bits written before the chunk
-    # In chunks of events, so the per-event and per-byte temporaries (80 bytes per event) stay bounded.
+    # In chunks of events, so the per-event temporaries stay bounded.
     for lo in range(0, scan.table.size, _EVENT_CHUNK):
         hi = lo + _EVENT_CHUNK
-        t, sym = scan.table[lo:hi].astype(np.intp), scan.symbol[lo:hi].astype(np.intp)
-        extra_len = scan.extra_len[lo:hi].astype(np.int64)
-        f_len = lens[t, sym] + extra_len
+        at = scan.table[lo:hi].astype(np.intp) * 256 + scan.symbol[lo:hi]  # flat (table, symbol)
+        extra_len = scan.extra_len[lo:hi]
+        f_len = lens.ravel()[at] + extra_len
         start = np.cumsum(f_len)
         start -= f_len
         start += offset
         offset += int(f_len.sum())
-        field = (codes[t, sym] << extra_len) | scan.extra[lo:hi]
-        # Place each field in a 40-bit window that starts at its first byte.
-        window = field << (40 - (start & 7) - f_len)
-        first = start >> 3
+        field = codes.ravel()[at] << extra_len.astype(np.uint64)
+        field |= scan.extra[lo:hi].astype(np.uint64)
+        # A field (at most 16 + 11 bits) lies within the 64 bits of the word it starts in and the
+        # next: place it there, then split the window into those two words.
+        shift = 64 - (start & 31) - f_len
+        window = field << shift.astype(np.uint64)
+        first = start >> 5
         base = int(first[0]) if first.size else 0
-        contributions = np.empty((5, field.size), dtype=np.float64)
-        for k in range(5):
-            contributions[k] = (window >> (32 - 8 * k)) & 0xFF
-        index = (first[None, :] - base + np.arange(5)[:, None]).ravel()
-        local = np.bincount(index, weights=contributions.ravel())
-        packed[base : base + local.size] += local.astype(np.uint8)
-    packed = packed[:n_bytes]
+        first -= base
+        size = int(first[-1]) + 2 if first.size else 0
+        local = np.bincount(first, weights=(window >> np.uint64(32)).astype(np.float64), minlength=size)
+        local[1:] += np.bincount(first, weights=(window & np.uint64(0xFFFFFFFF)).astype(np.float64),
+                                 minlength=size - 1)[: size - 1]
+        words[base : base + size] += local.astype(np.uint32)
+    packed = words.astype(">u4").view(np.uint8)[:n_bytes].copy()
     if total_bits % 8:
         packed[-1] += (1 << (8 - total_bits % 8)) - 1  # pad with 1-bits
     stuffed = int(np.count_nonzero(packed == 255))
