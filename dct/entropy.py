@@ -148,8 +148,8 @@ class Scan:
 
 def _magnitude_bits(values: np.ndarray, size: np.ndarray) -> np.ndarray:
     """The SSSS low-order bits that follow a symbol: v itself, or v - 1 in SSSS bits when v < 0."""
-    v = values.astype(np.int64)
-    return np.where(v < 0, v + (np.int64(1) << size) - 1, v)
+    v = values.astype(np.int32 if values.dtype in (np.int8, np.int16) else np.int64)
+    return np.where(v < 0, v + (v.dtype.type(1) << size.astype(v.dtype)) - 1, v)
 
 
 def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: tuple[int, ...]) -> Scan:
