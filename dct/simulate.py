@@ -127,7 +127,7 @@ def quantize(coefficients: np.ndarray, table: np.ndarray) -> np.ndarray:
         mag += c
         mag *= fq
         mag >>= r
-        np.negative(mag, out=mag, where=part < 0)
+        mag *= np.sign(part)  # the sign back (a masked negate is several times slower)
         flat_out[s : s + _QUANTIZE_CHUNK] = mag
     return out
 
