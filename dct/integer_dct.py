@@ -175,18 +175,26 @@ def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
     ndarray, shape (N, 8, 8), uint8
     """
     coefficients = np.asarray(coefficients)
+    return inverse_dct_islow_transposed(coefficients.transpose(0, 2, 1))
+
+
+def inverse_dct_islow_transposed(coefficients: np.ndarray) -> np.ndarray:
+    """:func:`inverse_dct_islow` of blocks given transposed (``[block, column, row]``), which is the
+    layout its first pass (down the columns) reads as one matrix product; the output is in the
+    usual ``[block, row, column]`` order. A decoder that gathers its coefficients anyway can gather
+    them this way and save a copy."""
+    coefficients = np.asarray(coefficients)
     if coefficients.shape[0] > CHUNK_BLOCKS:  # bounded float64 temporaries on large images
-        return np.concatenate([inverse_dct_islow(coefficients[s : s + CHUNK_BLOCKS])
+        return np.concatenate([inverse_dct_islow_transposed(coefficients[s : s + CHUNK_BLOCKS])
                                for s in range(0, coefficients.shape[0], CHUNK_BLOCKS)])
     m = pass_matrix("inverse")
-    z = np.asarray(coefficients, dtype=np.float64)
-    n = z.shape[0]
-    # Column pass: out[:, c] = M @ z[:, c] for every block, as one (8 x 8) @ (8 x 8N) product.
-    cols = m @ z.transpose(1, 0, 2).reshape(8, n * 8)
+    n = coefficients.shape[0]
+    # Column pass: every column of every block (a row of the transposed block) through M.
+    cols = np.asarray(coefficients, dtype=np.float64).reshape(n * 8, 8) @ m.T  # [block, column, row]
     cols = _descale(cols, CONST_BITS - PASS1_BITS)
-    work = cols.reshape(8, n, 8).transpose(1, 0, 2)  # back to (N, row, col)
-    # Row pass: every row of every block through M, as one (8N x 8) @ (8 x 8) product.
-    out = work.reshape(n * 8, 8) @ m.T
+    # Row pass: every row of every block through M (one transposing copy in between).
+    work = np.ascontiguousarray(cols.reshape(n, 8, 8).transpose(0, 2, 1)).reshape(n * 8, 8)
+    out = work @ m.T
     out = _descale(out, CONST_BITS + PASS1_BITS + 3)
     out += 128.0
     np.clip(out, 0.0, 255.0, out=out)

@@ -32,7 +32,7 @@ from typing import Iterable
 import numpy as np
 
 from . import color, damage, entropy, quality
-from .integer_dct import forward_dct_islow, inverse_dct_islow
+from .integer_dct import forward_dct_islow, inverse_dct_islow_transposed
 from .tables import SAMPLING_FACTORS, UNZIGZAG, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
 from .transform import BLOCK
 
@@ -196,7 +196,8 @@ def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int
 
     Block row by block row in chunks, so no full-size dequantized copy is made."""
     nby, nbx, _ = q.shape
-    table = np.asarray(table_natural, dtype=np.int16).reshape(64)  # q * Q stays within +-1024 + Q
+    # q * Q stays within +-1024 + Q; blocks are gathered transposed, as the inverse DCT reads them
+    table_t = np.asarray(table_natural, dtype=np.int16).reshape(8, 8).T.reshape(64)
     plane = np.empty((rows, cols), dtype=np.uint8)
     step = max(1, _DECODE_CHUNK // nbx)
     for by in range(0, nby, step):
@@ -204,9 +205,9 @@ def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int
         if top >= rows:
             break
         band = q[by : by + step]
-        deq = band.reshape(-1, 64)[:, UNZIGZAG]  # a copy, dequantized in place
-        deq *= table
-        blocks = inverse_dct_islow(deq.reshape(-1, 8, 8))
+        deq = band.reshape(-1, 64)[:, _UNZIGZAG_TRANSPOSED]  # a copy, dequantized in place
+        deq *= table_t
+        blocks = inverse_dct_islow_transposed(deq.reshape(-1, 8, 8))
         n = band.shape[0]
         pixels = blocks.reshape(n, nbx, BLOCK, BLOCK).transpose(0, 2, 1, 3).reshape(n * BLOCK, nbx * BLOCK)
         plane[top : top + n * BLOCK] = pixels[: rows - top, :cols]
@@ -214,6 +215,8 @@ def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int
 
 
 _DECODE_CHUNK = 1 << 14  # blocks per inverse-DCT chunk
+# Zigzag position of each coefficient of a transposed block ([column, row] order).
+_UNZIGZAG_TRANSPOSED = UNZIGZAG.reshape(8, 8).T.reshape(64)
 
 
 def _blocks(plane: np.ndarray) -> np.ndarray:
