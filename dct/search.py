@@ -199,6 +199,18 @@ class ClassSearch:
         pairs = [self._calibrated(key, k, s) for key in self.keys]
         return np.stack([p[0] for p in pairs]), np.stack([p[1] for p in pairs])
 
+    def _bytes_floor(self, combo, size: np.ndarray) -> np.ndarray:
+        """A lower bound on each image's bytes along quality: exact where its full point is known,
+        the forecast less ``BYTES_TOLERANCE`` elsewhere."""
+        k, s = combo
+        floor = size * (1 - BYTES_TOLERANCE)
+        index = {q: j for j, q in enumerate(self.qualities.tolist())}
+        for i, key in enumerate(self.keys):
+            for p, m in self.known[key].items():
+                if (p.cutoff, p.subsampling) == combo and p.quality in index:
+                    floor[i, index[p.quality]] = m.estimated_bytes
+        return floor
+
     def _class_curve(self, slack: np.ndarray) -> np.ndarray:
         """The need-th largest slack at each quality: >= 0 where the class qualifies."""
         return np.sort(slack, axis=0)[::-1][self.need - 1]
@@ -282,7 +294,7 @@ class ClassSearch:
             if bound is not None:  # only qualities whose bytes could come in under the bound matter
                 # (Not tighter near exact points: pure black makes bytes dip at single qualities too,
                 # where the DC step reproduces its level, and the bytes forecast is smooth in quality.)
-                affordable = np.flatnonzero(size.sum(axis=0) * (1 - BYTES_TOLERANCE) < bound)
+                affordable = np.flatnonzero(self._bytes_floor(combo, size).sum(axis=0) < bound)
                 if affordable.size == 0:
                     state.pruned = True
                     continue
