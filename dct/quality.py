@@ -252,12 +252,21 @@ class ReferenceStats:
 def _tile_means(strip: np.ndarray) -> np.ndarray:
     """Mean SSIM of LOCAL_TILE-sized tiles of a strip (partial edge tiles use their own pixels)."""
     h, w = strip.shape
-    ty, tx = -(-h // LOCAL_TILE), -(-w // LOCAL_TILE)
-    sums = np.add.reduceat(np.add.reduceat(strip, np.arange(0, h, LOCAL_TILE), axis=0, dtype=np.float64),
-                           np.arange(0, w, LOCAL_TILE), axis=1)
-    rows = np.minimum(LOCAL_TILE, h - np.arange(ty) * LOCAL_TILE)
-    cols = np.minimum(LOCAL_TILE, w - np.arange(tx) * LOCAL_TILE)
-    return sums / np.outer(rows, cols)
+    t = LOCAL_TILE
+    ty, tx = -(-h // t), -(-w // t)
+    full_rows, full_cols = h // t, w // t
+    # Sums down each tile row, then across: whole tiles by reshaping, the partial edge ones apart.
+    rows = np.empty((ty, w), dtype=np.float64)
+    rows[:full_rows] = strip[: full_rows * t].reshape(full_rows, t, w).sum(axis=1, dtype=np.float64)
+    if full_rows < ty:
+        rows[-1] = strip[full_rows * t :].sum(axis=0, dtype=np.float64)
+    sums = np.empty((ty, tx), dtype=np.float64)
+    sums[:, :full_cols] = rows[:, : full_cols * t].reshape(ty, full_cols, t).sum(axis=2)
+    if full_cols < tx:
+        sums[:, -1] = rows[:, full_cols * t :].sum(axis=1)
+    counts_down = np.minimum(t, h - np.arange(ty) * t)
+    counts_across = np.minimum(t, w - np.arange(tx) * t)
+    return sums / np.outer(counts_down, counts_across)
 
 
 class SsimResult:
