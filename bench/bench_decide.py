@@ -23,6 +23,7 @@ from __future__ import annotations
 
 import argparse
 import io
+import json
 import math
 import subprocess
 import sys
@@ -195,10 +196,21 @@ def main() -> None:
               f"  -> {ours[0].label() if ours else None} {ours and ours[1]} B")
         print(f"  ratio {script_time / ours_time:.2f}x; decisions agree: {ours == (script_choice, script_bytes)}")
 
-    t = time.perf_counter()
-    subprocess.run([sys.executable, "-m", "dct.cli", "sweep", str(ROOT / "demo_images"), "--workers", "2",
-                    "--no-cache", "--quiet", "--json", "/dev/null"], check=True, cwd=ROOT, stdout=subprocess.DEVNULL)
-    print(f"demo sweep (25 images, CLI, 2 workers, no cache): {time.perf_counter() - t:.1f} s")
+    decisions = {}
+    for strategy in ("search",) if args.quick else ("search", "grid"):
+        with tempfile.TemporaryDirectory() as tmp:
+            t = time.perf_counter()
+            subprocess.run([sys.executable, "-m", "dct.cli", "sweep", str(ROOT / "demo_images"), "--workers", "2",
+                            "--no-cache", "--quiet", "--strategy", strategy, "--json", f"{tmp}/doc.json"],
+                           check=True, cwd=ROOT, stdout=subprocess.DEVNULL)
+            elapsed = time.perf_counter() - t
+            doc = json.loads(Path(f"{tmp}/doc.json").read_text())
+        decisions[strategy] = {(c["name"], c["width"]): (c["setting"], c["estimated_bytes"],
+                                                         c["plain_fallback"] and c["plain_fallback"]["setting"])
+                               for c in doc["classes"]}
+        print(f"demo sweep (25 images, CLI, 2 workers, no cache, --strategy {strategy}): {elapsed:.1f} s")
+    if len(decisions) == 2:
+        print(f"  same decisions and plain fallbacks in every class: {decisions['search'] == decisions['grid']}")
 
     if not args.quick:
         with tempfile.TemporaryDirectory() as tmp:
