@@ -205,7 +205,9 @@ def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int
         if top >= rows:
             break
         band = q[by : by + step]
-        deq = band.reshape(-1, 64)[:, _UNZIGZAG_TRANSPOSED]  # a copy, dequantized in place
+        # A C-ordered copy, dequantized in place (fancy indexing along the last axis would give a
+        # column-major one, which the inverse DCT's float conversion then copies twice over).
+        deq = np.take(band.reshape(-1, 64), _UNZIGZAG_TRANSPOSED, axis=1)
         deq *= table_t
         blocks = inverse_dct_islow_transposed(deq.reshape(-1, 8, 8))
         n = band.shape[0]
@@ -225,7 +227,7 @@ def _blocks(plane: np.ndarray) -> np.ndarray:
     b = plane.reshape(h // BLOCK, BLOCK, w // BLOCK, BLOCK).transpose(0, 2, 1, 3).astype(np.int16) - np.int16(128)
     coef = forward_dct_islow(b).reshape(h // BLOCK, w // BLOCK, 64)
     # int16, as libjpeg's DCTELEM: 8-bit samples give |coefficient| <= 8192 on the x8 scale.
-    return np.ascontiguousarray(coef[..., ZIGZAG], dtype=np.int16)
+    return np.take(coef, ZIGZAG, axis=-1).astype(np.int16)
 
 
 def _nbytes(value) -> int:
