@@ -179,7 +179,9 @@ def sweep(sample_dir, target_ssim, coverage, chroma_floor, local_floor, current_
         click.echo(report.format_table(doc))
         click.echo(
             f"{outcome.evaluated} image passes computed, {outcome.reused} reused from the cache; "
-            f"{outcome.settings_evaluated} settings evaluated in all ({runner.description})"
+            f"{outcome.settings_evaluated} settings evaluated in all"
+            + (f", {outcome.failed_by_luma} more seen to fail by their luma SSIM alone" if outcome.failed_by_luma else "")
+            + f" ({runner.description})"
         )
     if not doc["classes"]:
         sys.exit(EXIT_NOTHING_USABLE)
