@@ -356,7 +356,7 @@ class PreparedImage:
         self._chroma_q = _Recent(4)
         self._luma_planes = _Recent(2)
         self._chroma_planes = _Recent(2)
-        self._luma_ssims = _Recent(2)  # (seen luma, SsimResult) per setting: luma_ssim() then evaluate()
+        self._luma_ssims = _Recent(2)  # (seen luma, SsimResult, chroma) per setting: luma_ssim() then evaluate()
         self._damage_ref: damage.EdgeReference | None = None
 
     def __getstate__(self) -> dict:
@@ -467,22 +467,17 @@ class PreparedImage:
                            ref_cr.compare(chroma.planes[1], want_local=False).ssim)
         return chroma.ssim
 
-    def _seen_luma(self, luma_t: np.ndarray, chroma_t: np.ndarray, subsampling: str) -> tuple:
-        """(luma plane, chroma decode or None, the luma a viewer sees) of one pair of tables."""
-        luma = self._decode_luma(luma_t)
-        if self.grayscale:
-            return luma, None, luma
-        chroma = self._decode_chroma(chroma_t, subsampling)
-        # The luma of the decoded RGB by one table lookup, without the RGB image.
-        return luma, chroma, color.decoded_luma(luma, *chroma.planes)
-
     def _luma_ssim(self, luma_t: np.ndarray, chroma_t: np.ndarray, subsampling: str):
-        """(seen luma, its SSIM with the local statistic and the map's values next to edges)."""
+        """(seen luma, its SSIM with the local statistic and the map's values next to edges, the
+        chroma decode or None), so that evaluate() needs no second chroma decode."""
         key = (luma_t.tobytes(), chroma_t.tobytes(), subsampling)
 
         def compare():
-            seen = self._seen_luma(luma_t, chroma_t, subsampling)[2]
-            return seen, self._luma_reference().compare(seen, at=self._damage_reference().edge_index)
+            luma = self._decode_luma(luma_t)
+            chroma = None if self.grayscale else self._decode_chroma(chroma_t, subsampling)
+            # The luma a viewer sees: of the decoded RGB, by one table lookup without the RGB image.
+            seen = luma if chroma is None else color.decoded_luma(luma, *chroma.planes)
+            return seen, self._luma_reference().compare(seen, at=self._damage_reference().edge_index), chroma
 
         return self._luma_ssims.get(key, compare)
 
@@ -542,14 +537,14 @@ class PreparedImage:
             chroma_t = check_table(tables[1], "chroma table")
             subsampling = check_subsampling(subsampling or "4:2:0")
         if want_arrays:
-            luma, chroma, _ = self._seen_luma(luma_t, chroma_t, subsampling)
+            luma = self._decode_luma(luma_t)
+            chroma = None if self.grayscale else self._decode_chroma(chroma_t, subsampling)
             decoded = luma if chroma is None else color.ycbcr_to_rgb(luma, *chroma.planes)
             seen_luma = luma if chroma is None else color.luma(decoded)
             luma_ssim = self._luma_reference().compare(seen_luma, want_map=True)
         else:
             # A sweep point needs only the map's values next to edges, not the whole map.
-            seen_luma, luma_ssim = self._luma_ssim(luma_t, chroma_t, subsampling)
-            chroma = None if self.grayscale else self._decode_chroma(chroma_t, subsampling)
+            seen_luma, luma_ssim, chroma = self._luma_ssim(luma_t, chroma_t, subsampling)
         scan = self._scan(luma_t, chroma_t, subsampling)
         optimal = self._file_size(scan, True)
         standard_total = self._file_size(scan, False).total if (want_arrays if standard is None else standard) else None
