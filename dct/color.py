@@ -34,9 +34,10 @@ The equality is checked pixel for pixel against Pillow's encoder (coefficients r
 
 from __future__ import annotations
 
-from functools import lru_cache
 
 import numpy as np
+
+from .jit import kernel
 
 SCALEBITS = 16
 ONE_HALF = 1 << (SCALEBITS - 1)
@@ -110,23 +111,35 @@ def ycbcr_to_rgb(y: np.ndarray, cb: np.ndarray, cr: np.ndarray) -> np.ndarray:
     return out
 
 
-@lru_cache(maxsize=1)
-def _seen_luma_table() -> np.ndarray:
-    """luma(ycbcr_to_rgb(y, cb, cr)) for every (y, cb, cr): 16 MiB, built once per process."""
-    cb, cr = np.meshgrid(np.arange(256, dtype=np.uint8), np.arange(256, dtype=np.uint8), indexing="ij")
-    table = np.empty((256, 256, 256), dtype=np.uint8)
-    for y in range(256):
-        table[y] = luma(ycbcr_to_rgb(np.full(cb.shape, y, np.uint8), cb, cr))
-    return table.reshape(-1)
-
-
 def decoded_luma(y: np.ndarray, cb: np.ndarray, cr: np.ndarray) -> np.ndarray:
-    """``luma(ycbcr_to_rgb(y, cb, cr))`` (what a viewer's luma of the decoded RGB is) by one lookup,
-    without making the RGB image; (H, W) uint8."""
-    index = np.left_shift(y, 16, dtype=np.int32)
-    index |= np.left_shift(cb, 8, dtype=np.int32)
-    index |= cr
-    return _seen_luma_table()[index]
+    """``luma(ycbcr_to_rgb(y, cb, cr))`` (what a viewer's luma of the decoded RGB is) in one
+    compiled pass, without making the RGB image; (H, W) uint8.
+
+    The decoder's tables are computed in place (the same fixed-point products and shifts, in
+    int32: ``FIX(1.772) * 127 < 2**24``), which lets the compiler vectorize the loop.
+    """
+    y, cb, cr = (np.ascontiguousarray(p, dtype=np.uint8) for p in (y, cb, cr))
+    if not (y.shape == cb.shape == cr.shape and y.ndim == 2):
+        raise ValueError(f"Y, Cb and Cr must be 2-D planes of one shape, got {y.shape}, {cb.shape}, {cr.shape}")
+    out = np.empty(y.shape, np.uint8)
+    _decoded_luma(y.ravel(), cb.ravel(), cr.ravel(), out.ravel())
+    return out
+
+
+_R_CR, _B_CB, _G_CB, _G_CR = _fix(1.40200), _fix(1.77200), -_fix(0.34414), -_fix(0.71414)
+
+
+@kernel
+def _decoded_luma(y, cb, cr, out):
+    wr, wg, wb = np.int32(_Y_WEIGHTS[0]), np.int32(_Y_WEIGHTS[1]), np.int32(_Y_WEIGHTS[2])
+    half = np.int32(ONE_HALF)
+    for k in range(y.size):
+        v = np.int32(y[k])
+        u, w = np.int32(cb[k]) - 128, np.int32(cr[k]) - 128
+        r = min(max(v + ((_R_CR * w + half) >> SCALEBITS), 0), 255)  # CR_TO_R
+        g = min(max(v + ((_G_CB * u + half + _G_CR * w) >> SCALEBITS), 0), 255)
+        b = min(max(v + ((_B_CB * u + half) >> SCALEBITS), 0), 255)  # CB_TO_B
+        out[k] = (wr * r + wg * g + wb * b + half) >> SCALEBITS
 
 
 def pad_edges(plane: np.ndarray, height: int, width: int) -> np.ndarray:

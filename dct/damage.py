@@ -53,6 +53,8 @@ from dataclasses import dataclass
 import cv2
 import numpy as np
 
+from .jit import kernel
+
 EDGE_SMOOTH_SIGMA = 1.0  # px; grain of sigma 10 levels keeps a 3x3 range of ~3 after it
 EDGE_STRENGTH = 64.0  # levels of 3x3 range after smoothing: a step of about 75 levels or more
 EDGE_RADIUS = 1  # px: the edge neighbourhood is the edge mask dilated by this much
@@ -98,6 +100,33 @@ class DamageSpot:
     height: int
     width: int
     value: float
+
+
+@kernel
+def _smooth_steps(distorted, reference, smooth):
+    """Sums of |step| of the coding error e = distorted - reference (float32) between neighbours that
+    are both smooth: (pairs across a block boundary, pairs inside a block), float64; one pass."""
+    h, w = smooth.shape
+    across = inside = 0.0
+    for i in range(h):
+        below = i + 1 < h
+        for j in range(w):
+            if not smooth[i, j]:
+                continue
+            e = np.float32(distorted[i, j]) - np.float32(reference[i, j])
+            if j + 1 < w and smooth[i, j + 1]:
+                step = abs((np.float32(distorted[i, j + 1]) - np.float32(reference[i, j + 1])) - e)
+                if j % BLOCK == BLOCK - 1:
+                    across += step
+                else:
+                    inside += step
+            if below and smooth[i + 1, j]:
+                step = abs((np.float32(distorted[i + 1, j]) - np.float32(reference[i + 1, j])) - e)
+                if i % BLOCK == BLOCK - 1:
+                    across += step
+                else:
+                    inside += step
+    return across, inside
 
 
 def _boundary_masks(shape: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
@@ -229,25 +258,13 @@ class EdgeReference:
         return DamageResult(edge_ssim=edge_ssim, blocking=blocking)
 
     def _blocking(self, distorted: np.ndarray) -> float:
-        """Mean error step across block boundaries minus inside blocks, over smooth pixel pairs;
-        band by band of rows, so the float32 error planes stay bounded on large images."""
+        """Mean error step across block boundaries minus inside blocks, over smooth pixel pairs."""
         d = np.asarray(distorted)
         if d.shape != self.shape:
             raise ValueError(f"distorted plane has shape {d.shape!r}, the reference {self.shape!r}")
-        h, w = self.shape
-        across_cols = _across_cols(w)
-        b_sum = all_sum = 0.0
-        for r0, r1, pair_cols, pair_rows in self._smooth_pairs():
-            rows_end = min(r1 + 1, h)  # one more row for the vertical steps of the band's last row
-            err = d[r0:rows_end].astype(np.float32) - self.plane[r0:rows_end]
-            col_steps = np.abs(np.diff(err[: r1 - r0], axis=1))
-            row_steps = np.abs(np.diff(err, axis=0))
-            across_rows = _across_rows(r0, r1, h)
-            b_sum += float(col_steps[:, across_cols][pair_cols[:, across_cols]].sum(dtype=np.float64))
-            b_sum += float(row_steps[across_rows][pair_rows[across_rows]].sum(dtype=np.float64))
-            all_sum += float(col_steps[pair_cols].sum(dtype=np.float64)) + float(row_steps[pair_rows].sum(dtype=np.float64))
+        b_sum, i_sum = _smooth_steps(d, self.plane, self.smooth)
         b_n, i_n = self._pair_counts
-        return b_sum / b_n - ((all_sum - b_sum) / i_n if i_n else 0.0)
+        return b_sum / b_n - (i_sum / i_n if i_n else 0.0)
 
     def _boundary_pairs(self) -> tuple[np.ndarray, np.ndarray]:
         """Flat indices of the smooth pairs across block boundaries: columns (H, W-1), rows (H-1, W)."""

@@ -15,8 +15,9 @@ The size is computed from symbol statistics rather than by writing bits:
   codes (Annex C) and the magnitude bits, and every 0xFF byte counted; so the size is byte for byte
   the file's (tests/test_exact.py).
 
-Everything that touches coefficients is vectorized over all blocks (numpy), with no Python loop per
-block or coefficient; only the Huffman construction over at most 257 symbols runs in Python.
+The two passes over blocks and symbols (the events in coding order, and the bit assembly that counts
+stuffing) are compiled loops (``dct.jit``); the Huffman construction over at most 257 symbols runs
+in Python.
 """
 
 from __future__ import annotations
@@ -25,6 +26,8 @@ import heapq
 from dataclasses import dataclass
 
 import numpy as np
+
+from .jit import kernel
 
 # ITU-T T.81 Annex K.3, Table K.3 (luminance DC), as BITS (codes of length 1..16) and HUFFVAL.
 STD_DC_LUMA_BITS = (0, 1, 5, 1, 1, 1, 1, 1, 1, 0, 0, 0, 0, 0, 0, 0)
@@ -146,12 +149,6 @@ class Scan:
         return SymbolStats(self.counts(2 * group), self.counts(2 * group + 1), int(self.extra_len[sel].sum()))
 
 
-def _magnitude_bits(values: np.ndarray, size: np.ndarray) -> np.ndarray:
-    """The SSSS low-order bits that follow a symbol: v itself, or v - 1 in SSSS bits when v < 0."""
-    v = values.astype(np.int32 if values.dtype in (np.int8, np.int16) else np.int64)
-    return np.where(v < 0, v + (v.dtype.type(1) << size.astype(v.dtype)) - 1, v)
-
-
 def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: tuple[int, ...]) -> Scan:
     """The symbol sequence of a scan, vectorized over all blocks (T.81 F.1.2.1 and F.1.2.2).
 
@@ -180,12 +177,7 @@ def scan_chunks(chunks, group_of_component: tuple[int, ...]) -> Scan:
     the whole scan's blocks never need to exist at once."""
     parts, previous = [], np.zeros(len(group_of_component), np.int64)
     for chunk, comp in chunks:
-        chunk = np.ascontiguousarray(chunk)
-        parts.append(_scan_part(chunk, comp, group_of_component, previous.copy()))
-        for c in range(len(group_of_component)):
-            idx = np.flatnonzero(comp == c)
-            if idx.size:
-                previous[c] = chunk[idx[-1], 0]
+        parts.append(_scan_part(np.ascontiguousarray(chunk), comp, group_of_component, previous))
     if len(parts) == 1:
         return parts[0]
     return Scan(*(np.concatenate([getattr(p, name) for p in parts]) for name in ("table", "symbol", "extra", "extra_len")),
@@ -197,54 +189,96 @@ _SCAN_CHUNK = 1 << 15
 
 def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tuple[int, ...],
                previous_dc: np.ndarray) -> Scan:
-    """:func:`scan_symbols` of consecutive blocks, each component's DC predicted from ``previous_dc``."""
-    n = blocks.shape[0]
-    group = np.asarray(group_of_component, dtype=np.int64)[component]
+    """:func:`scan_symbols` of consecutive blocks, each component's DC predicted from ``previous_dc``
+    (which is left holding each component's last DC, for the next piece)."""
+    if blocks.dtype != np.int16:
+        if blocks.size and np.abs(blocks).max() > np.iinfo(np.int16).max:
+            raise ValueError(f"coefficient magnitude {int(np.abs(blocks).max())} is beyond baseline JPEG's range")
+        blocks = blocks.astype(np.int16)
+    component = np.ascontiguousarray(component, dtype=np.int8)
+    group = np.asarray(group_of_component, dtype=np.int8)
+    events = _count_events(blocks)
+    table = np.empty(events, np.int8)
+    symbol = np.empty(events, np.int16)
+    extra = np.empty(events, np.int32)
+    extra_len = np.empty(events, np.int8)
+    if _fill_events(blocks, component, group, previous_dc, table, symbol, extra, extra_len) < 0:
+        raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
+    return Scan(table, symbol, extra, extra_len, len(set(group_of_component)))
 
-    # DC differences per component, in coding order.
-    dc = blocks[:, 0].astype(np.int64)
-    diff = np.empty(n, dtype=np.int64)
-    for c in range(len(group_of_component)):
-        idx = np.flatnonzero(component == c)
-        diff[idx] = np.diff(dc[idx], prepend=previous_dc[c])
-    dc_size = magnitude_category(diff)
 
-    # AC non-zeros: a flat index of the contiguous (N, 64) array splits into block (>> 6) and
-    # zigzag position (& 63); the previous non-zero of the same block (0 = the DC slot) gives the run.
-    flat = np.flatnonzero(blocks)
-    flat = flat[(flat & 63) != 0]
-    rows, pos = flat >> 6, flat & 63
-    values = blocks.ravel()[flat]
-    size = magnitude_category(values)
-    prev = np.zeros_like(pos)
-    if pos.size:
-        prev[1:] = pos[:-1]
-        prev[np.r_[True, rows[1:] != rows[:-1]]] = 0
-    run = pos - prev - 1
-    zrl = run >> 4
-    eob_rows = np.flatnonzero(blocks[:, 63] == 0)
+@kernel
+def _count_events(blocks):
+    """How many events the blocks' scan has: a DC each, ZRLs and a symbol per AC non-zero, EOBs."""
+    events = 0
+    for b in range(blocks.shape[0]):
+        events += 1
+        last = 0
+        for k in range(1, 64):
+            if blocks[b, k] != 0:
+                events += ((k - last - 1) >> 4) + 1
+                last = k
+        if last != 63:
+            events += 1
+    return events
 
-    # Order every event by a key: DC at slot 0, a non-zero at position p at slot 2p + 1 with its
-    # ZRLs (one per 16 zeros skipped) just before it at slot 2p, EOB at slot 255.
-    zrl_owner = np.repeat(np.arange(pos.size), zrl)
-    keys = np.concatenate([
-        np.arange(n, dtype=np.int64) << 8,
-        (rows.astype(np.int64) << 8) | (2 * pos + 1),
-        (rows[zrl_owner].astype(np.int64) << 8) | (2 * pos[zrl_owner]),
-        (eob_rows.astype(np.int64) << 8) | 255,
-    ])
-    # Narrow types from here on (8 bytes per event instead of 32), so large images stay in memory.
-    table = np.concatenate([(2 * group).astype(np.int8), (2 * group[rows] + 1).astype(np.int8),
-                            (2 * group[rows[zrl_owner]] + 1).astype(np.int8), (2 * group[eob_rows] + 1).astype(np.int8)])
-    symbol = np.concatenate([dc_size.astype(np.int16), (((run & 15) << 4) | size).astype(np.int16),
-                             np.full(zrl_owner.size, ZRL, np.int16), np.full(eob_rows.size, EOB, np.int16)])
-    extra = np.concatenate([_magnitude_bits(diff, dc_size).astype(np.int32), _magnitude_bits(values, size).astype(np.int32),
-                            np.zeros(zrl_owner.size + eob_rows.size, np.int32)])
-    extra_len = np.concatenate([dc_size.astype(np.int8), size.astype(np.int8),
-                                np.zeros(zrl_owner.size + eob_rows.size, np.int8)])
-    order = np.argsort(keys, kind="stable")
-    del keys
-    return Scan(table[order], symbol[order], extra[order], extra_len[order], len(set(group_of_component)))
+
+@kernel
+def _category(magnitude):
+    """SSSS (T.81 Tables F.1 and F.2): the bit length of a non-negative magnitude."""
+    size = 0
+    while magnitude:
+        magnitude >>= 1
+        size += 1
+    return size
+
+
+@kernel
+def _fill_events(blocks, component, group, previous_dc, table, symbol, extra, extra_len):
+    """Write the scan's events in coding order (T.81 F.1.2.1 and F.1.2.2); -1 if a DC difference
+    needs more than 16 bits."""
+    e = 0
+    for b in range(blocks.shape[0]):
+        c = component[b]
+        dc_table = 2 * group[c]
+        dc = np.int64(blocks[b, 0])
+        diff = dc - previous_dc[c]
+        previous_dc[c] = dc
+        size = _category(abs(diff))
+        if size > 16:
+            return -1
+        table[e] = dc_table
+        symbol[e] = size
+        extra[e] = diff if diff >= 0 else diff + (1 << size) - 1  # negative: v - 1 in SSSS bits
+        extra_len[e] = size
+        e += 1
+        last = 0
+        for k in range(1, 64):
+            v = np.int64(blocks[b, k])
+            if v == 0:
+                continue
+            run = k - last - 1
+            while run > 15:  # ZRL: sixteen zeros
+                table[e] = dc_table + 1
+                symbol[e] = ZRL
+                extra[e] = 0
+                extra_len[e] = 0
+                e += 1
+                run -= 16
+            size = _category(abs(v))
+            table[e] = dc_table + 1
+            symbol[e] = (run << 4) | size
+            extra[e] = v if v >= 0 else v + (1 << size) - 1
+            extra_len[e] = size
+            e += 1
+            last = k
+        if last != 63:
+            table[e] = dc_table + 1
+            symbol[e] = EOB
+            extra[e] = 0
+            extra_len[e] = 0
+            e += 1
+    return e
 
 
 def block_symbol_stats(blocks: np.ndarray) -> SymbolStats:
@@ -273,16 +307,12 @@ def canonical_codes(bits: tuple[int, ...], huffval: tuple[int, ...], size: int) 
     return codes, lengths
 
 
-_EVENT_CHUNK = 1 << 18
-
-
 def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]]) -> tuple[int, int]:
     """Exact length of the entropy-coded segment: the packed bits, padding and 0xFF stuffing.
 
     The bits are assembled as the encoder writes them (T.81 F.1.2.3): each symbol's code followed by
     its magnitude bits, most significant bit first, the last byte padded with 1-bits, and a 0x00
-    stuffed after every 0xFF byte. Each field (at most 16 + 11 bits) lands in at most 5 bytes; the
-    fields' bits never overlap, so adding their per-byte contributions assembles the bytes.
+    stuffed after every 0xFF byte.
 
     Parameters
     ----------
@@ -294,7 +324,7 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
     -------
     (bytes, stuffed) : total bytes of the segment including stuffing, and the stuffed count.
     """
-    codes = np.zeros((len(tables), 256), dtype=np.uint64)
+    codes = np.zeros((len(tables), 256), dtype=np.int64)
     lens = np.zeros((len(tables), 256), dtype=np.int64)
     for t, (c, l) in enumerate(tables):
         codes[t, : c.size], lens[t, : l.size] = c, l
@@ -303,41 +333,36 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
     missing = (used > 0) & (lens.ravel() == 0)
     if np.any(missing):
         raise ValueError(f"symbols {sorted({int(i) % 256 for i in np.flatnonzero(missing)})!r} have no code in the table")
-    total_bits = int((used * lens.ravel()).sum()) + int(scan.extra_len.sum(dtype=np.int64))
-    n_bytes = (total_bits + 7) // 8
-    # Big-endian 32-bit words of the stream; the fields' bits never overlap, so adding their
-    # contributions assembles the words.
-    words = np.zeros(total_bits // 32 + 2, dtype=np.uint32)
-    offset = 0  # bits written before the chunk
-    # In chunks of events, so the per-event temporaries stay bounded.
-    for lo in range(0, scan.table.size, _EVENT_CHUNK):
-        hi = lo + _EVENT_CHUNK
-        at = scan.table[lo:hi].astype(np.intp) * 256 + scan.symbol[lo:hi]  # flat (table, symbol)
-        extra_len = scan.extra_len[lo:hi]
-        f_len = lens.ravel()[at] + extra_len
-        start = np.cumsum(f_len)
-        start -= f_len
-        start += offset
-        offset += int(f_len.sum())
-        field = codes.ravel()[at] << extra_len.astype(np.uint64)
-        field |= scan.extra[lo:hi].astype(np.uint64)
-        # A field (at most 16 + 11 bits) lies within the 64 bits of the word it starts in and the
-        # next: place it there, then split the window into those two words.
-        shift = 64 - (start & 31) - f_len
-        window = field << shift.astype(np.uint64)
-        first = start >> 5
-        base = int(first[0]) if first.size else 0
-        first -= base
-        size = int(first[-1]) + 2 if first.size else 0
-        local = np.bincount(first, weights=(window >> np.uint64(32)).astype(np.float64), minlength=size)
-        local[1:] += np.bincount(first, weights=(window & np.uint64(0xFFFFFFFF)).astype(np.float64),
-                                 minlength=size - 1)[: size - 1]
-        words[base : base + size] += local.astype(np.uint32)
-    packed = words.astype(">u4").view(np.uint8)[:n_bytes].copy()
-    if total_bits % 8:
-        packed[-1] += (1 << (8 - total_bits % 8)) - 1  # pad with 1-bits
-    stuffed = int(np.count_nonzero(packed == 255))
+    n_bytes, stuffed = _assemble(scan.table, scan.symbol, scan.extra, scan.extra_len, codes, lens)
     return n_bytes + stuffed, stuffed
+
+
+@kernel
+def _assemble(table, symbol, extra, extra_len, codes, lens):
+    """Write the scan's bits most significant first into a small accumulator, byte by byte; the
+    byte count (the last one padded with 1-bits) and how many of them are 0xFF."""
+    acc = np.int64(0)  # never more than 7 + 16 + 16 bits pending
+    pending = 0
+    n_bytes = 0
+    stuffed = 0
+    for i in range(table.shape[0]):
+        t, s = table[i], symbol[i]
+        n = lens[t, s]
+        acc = (acc << n) | codes[t, s]
+        n_extra = extra_len[i]
+        acc = (acc << n_extra) | extra[i]
+        pending += n + n_extra
+        while pending >= 8:
+            pending -= 8
+            if (acc >> pending) & 0xFF == 0xFF:
+                stuffed += 1
+            n_bytes += 1
+        acc &= (np.int64(1) << pending) - 1
+    if pending:
+        n_bytes += 1
+        if ((acc << (8 - pending)) | ((1 << (8 - pending)) - 1)) & 0xFF == 0xFF:
+            stuffed += 1
+    return n_bytes, stuffed
 
 
 def optimal_table(counts: np.ndarray) -> tuple[tuple[int, ...], tuple[int, ...]]:

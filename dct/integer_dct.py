@@ -20,6 +20,11 @@ with one float64 matrix product per pass. float64 holds every intermediate exact
 sums stay below 2**16, inputs below 2**20 (a dequantized coefficient is at most 2**11 * 255), so each
 dot product of 8 terms stays below 2**40 < 2**53, and the power-of-two rounding shift is exact too.
 
+The decoder that sweeps run for every setting (:func:`inverse_dct_islow_plane`) is the butterflies
+themselves, compiled (``dct.jit``) and run on int64 scalars block by block: the same integers and the
+same two roundings, without the matrix products' temporaries. tests/test_integer_dct.py holds it
+equal to the matrix form.
+
 Scaling
 -------
 * Forward: rows produce ``sqrt(8) * 2**2`` times the orthonormal DCT of each row (``PASS1_BITS = 2``
@@ -45,6 +50,9 @@ from functools import lru_cache
 
 import numpy as np
 
+from .jit import kernel
+from .tables import UNZIGZAG
+
 CONST_BITS = 13
 PASS1_BITS = 2
 
@@ -68,6 +76,7 @@ FIX_2_562915447 = _fix(2.562915447)  # sqrt(2) * (-c1 - c3)
 FIX_3_072711026 = _fix(3.072711026)  # sqrt(2) * (c1 + c3 + c5 - c7)
 
 
+@kernel
 def _odd_rotations(t4, t5, t6, t7):
     """The odd half of the LL&M flow graph (its figure 8): four inputs, four outputs, 12 products."""
     z1, z2, z3, z4 = t4 + t7, t5 + t6, t4 + t6, t5 + t7
@@ -101,6 +110,7 @@ def _forward_butterfly(x):
     return out
 
 
+@kernel
 def _inverse_butterfly(y):
     """One inverse 1-D pass before rounding: the transpose flow of the forward pass (exact ints)."""
     z2, z3 = y[2], y[6]
@@ -112,7 +122,7 @@ def _inverse_butterfly(y):
     t10, t13 = t0 + t3, t0 - t3
     t11, t12 = t1 + t2, t1 - t2
     o0, o1, o2, o3 = _odd_rotations(y[7], y[5], y[3], y[1])
-    return [t10 + o3, t11 + o2, t12 + o1, t13 + o0, t13 - o0, t12 - o1, t11 - o2, t10 - o3]
+    return (t10 + o3, t11 + o2, t12 + o1, t13 + o0, t13 - o0, t12 - o1, t11 - o2, t10 - o3)
 
 
 @lru_cache(maxsize=None)
@@ -121,7 +131,7 @@ def pass_matrix(kind: str) -> np.ndarray:
 
     Row k holds the weights of output k before the pass's rounding shift.
     """
-    butterfly = {"forward": _forward_butterfly, "inverse": _inverse_butterfly}[kind]
+    butterfly = {"forward": _forward_butterfly, "inverse": _inverse_butterfly.py_func}[kind]
     unit = np.eye(8, dtype=np.int64)
     columns = butterfly([unit[i] for i in range(8)])  # output k as a vector of input weights
     return np.array(columns, dtype=np.float64)
@@ -175,18 +185,10 @@ def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
     ndarray, shape (N, 8, 8), uint8
     """
     coefficients = np.asarray(coefficients)
-    return inverse_dct_islow_transposed(coefficients.transpose(0, 2, 1))
-
-
-def inverse_dct_islow_transposed(coefficients: np.ndarray) -> np.ndarray:
-    """:func:`inverse_dct_islow` of blocks given transposed (``[block, column, row]``), which is the
-    layout its first pass (down the columns) reads as one matrix product; the output is in the
-    usual ``[block, row, column]`` order. A decoder that gathers its coefficients anyway can gather
-    them this way and save a copy."""
-    coefficients = np.asarray(coefficients)
     if coefficients.shape[0] > CHUNK_BLOCKS:  # bounded float64 temporaries on large images
-        return np.concatenate([inverse_dct_islow_transposed(coefficients[s : s + CHUNK_BLOCKS])
+        return np.concatenate([inverse_dct_islow(coefficients[s : s + CHUNK_BLOCKS])
                                for s in range(0, coefficients.shape[0], CHUNK_BLOCKS)])
+    coefficients = coefficients.transpose(0, 2, 1)  # [block, column, row]: the first pass's layout
     m = pass_matrix("inverse")
     n = coefficients.shape[0]
     # Column pass: every column of every block (a row of the transposed block) through M.
@@ -199,3 +201,62 @@ def inverse_dct_islow_transposed(coefficients: np.ndarray) -> np.ndarray:
     out += 128.0
     np.clip(out, 0.0, 255.0, out=out)
     return out.astype(np.uint8).reshape(n, 8, 8)
+
+
+def inverse_dct_islow_plane(quantized: np.ndarray, table: np.ndarray, rows: int, cols: int) -> np.ndarray:
+    """Dequantize, inverse-DCT (as :func:`inverse_dct_islow`) and assemble one component's plane.
+
+    The compiled path a decoder takes: each block straight from its quantized zigzag coefficients
+    into the output plane, with libjpeg's shortcut for a column whose AC terms are all zero (its
+    outputs are the DC times ``2**PASS1_BITS``, which is what the full pass gives for such a
+    column, so the shortcut changes no value).
+
+    Parameters
+    ----------
+    quantized : ndarray, shape (nby, nbx, 64), int16 — quantized coefficients, zigzag order.
+    table : ndarray, shape (8, 8) or (64,) — the quantization table, natural order.
+    rows, cols : int — the plane's size; blocks past it are cropped (at most ``8 * nby`` x ``8 * nbx``).
+
+    Returns
+    -------
+    ndarray, shape (rows, cols), uint8
+    """
+    q = np.ascontiguousarray(quantized, dtype=np.int16)
+    if q.ndim != 3 or q.shape[2] != 64:
+        raise ValueError(f"quantized blocks must have shape (nby, nbx, 64), got {q.shape!r}")
+    if not (0 < rows <= 8 * q.shape[0] and 0 < cols <= 8 * q.shape[1]):
+        raise ValueError(f"a {rows}x{cols} plane does not fit {q.shape[0]}x{q.shape[1]} blocks")
+    # Each dequantized coefficient is read at its natural position (row-major within the block).
+    dequantize = np.asarray(table, dtype=np.int64).reshape(64)
+    plane = np.empty((rows, cols), dtype=np.uint8)
+    _decode_blocks(q, dequantize, UNZIGZAG.astype(np.int64), plane)
+    return plane
+
+
+@kernel
+def _decode_blocks(q, table, unzigzag, plane):
+    rows, cols = plane.shape
+    pass1 = CONST_BITS - PASS1_BITS
+    pass2 = CONST_BITS + PASS1_BITS + 3
+    work = np.empty((8, 8), np.int64)  # [row, column] after the column pass
+    coef = np.empty(8, np.int64)
+    for by in range(min(q.shape[0], (rows + 7) // 8)):
+        for bx in range(min(q.shape[1], (cols + 7) // 8)):
+            for c in range(8):  # column pass
+                zero_ac = True
+                for r in range(8):
+                    coef[r] = q[by, bx, unzigzag[8 * r + c]] * table[8 * r + c]
+                    if r and coef[r] != 0:
+                        zero_ac = False
+                if zero_ac:
+                    for r in range(8):
+                        work[r, c] = coef[0] << PASS1_BITS
+                else:
+                    out = _inverse_butterfly(coef)
+                    for r in range(8):
+                        work[r, c] = (out[r] + (1 << (pass1 - 1))) >> pass1
+            for r in range(min(8, rows - 8 * by)):  # row pass, cropped to the plane
+                out = _inverse_butterfly(work[r])
+                for c in range(min(8, cols - 8 * bx)):
+                    v = ((out[c] + (1 << (pass2 - 1))) >> pass2) + 128
+                    plane[8 * by + r, 8 * bx + c] = 0 if v < 0 else (255 if v > 255 else v)

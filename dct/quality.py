@@ -34,6 +34,8 @@ from functools import lru_cache
 import cv2
 import numpy as np
 
+from .jit import kernel
+
 K1 = 0.01
 K2 = 0.03
 L = 255.0
@@ -190,42 +192,18 @@ class ReferenceStats:
         tiles = []
         sq_err = 0.0
         for number, (s, e) in enumerate(self._strips()):
-            # Eq. (13) rewritten in the error e = y - x, which is small: with sigma_xy = sigma_x^2 +
-            # sigma_xe and sigma_y^2 = sigma_x^2 + 2 sigma_xe + sigma_e^2, the luminance factor is
-            # n1 / (n1 + mu_e^2) with n1 = 2 mu_x mu_y + C1, and the contrast-structure factor is
-            # n2 / (n2 + sigma_e^2) with n2 = 2 sigma_x^2 + 2 sigma_xe + C2. Filtering e, e^2 and
-            # (x - 128) e avoids the float32 cancellation of filtering y^2 and x y directly.
-            xe = _rows_with_halo(self.plane, s, e).astype(np.float32)
-            es = _rows_with_halo(y, s, e).astype(np.float32) - xe
-            xe -= 128.0
-            xe *= es
+            # Eq. (13) in the error e = y - x (see _ssim_formula): filter e, e^2 and (x - 128) e.
+            es, ee, xe, own = _error_moments(self.plane, y, s, e)
+            sq_err += own  # the strip's own rows
             ue = _filter(es)[::step, ::step]
-            es *= es
-            sq_err += float(es[RADIUS : RADIUS + e - s].sum(dtype=np.float64))  # the strip's own rows
-            ee = _filter(es)[::step, ::step]
+            ee = _filter(ee)[::step, ::step]
             sxe = _filter(xe)[::step, ::step]
             lo, hi = s // step, -(-e // step)
             if self.keep_stats:
                 ux, var_x = self.mean[lo:hi], self.var[lo:hi]
             else:
                 ux, var_x = self._strip_stats(s, e)
-            uxs = ux - 128.0
-            sxe -= uxs * ue  # sigma_xe
-            ee -= ue * ue  # sigma_e^2
-            n1 = ux + ue  # mu_y
-            n1 *= ux
-            n1 *= 2.0
-            n1 += C1
-            ue *= ue
-            ue += n1  # luminance denominator
-            n2 = var_x + sxe
-            n2 *= 2.0
-            n2 += C2
-            ee += n2  # contrast-structure denominator
-            n1 *= n2
-            ue *= ee
-            n1 /= ue
-            strip = n1  # eq. (13) at the sampled pixels of rows s..e
+            strip = _ssim_formula(ux, var_x, ue, ee, sxe)  # eq. (13) at the sampled pixels of rows s..e
             if ssim_map is not None:
                 ssim_map[s:e] = strip
             if at is not None:
@@ -246,6 +224,73 @@ class ReferenceStats:
             tile_means=tile_means,
             values_at=np.concatenate(gathered) if at is not None else None,
         )
+
+
+@kernel
+def _error_moments(x, y, start, stop):
+    """e = y - x, e^2 and (x - 128) e over rows start-r .. stop+r of two planes, mirrored past their
+    top and bottom as :func:`_rows_with_halo` mirrors them; float32, plus the sum of e^2 over the
+    strip's own rows (float64), in one pass."""
+    h, w = x.shape
+    lo, hi = start - RADIUS, stop + RADIUS
+    es = np.empty((hi - lo, w), np.float32)
+    ee = np.empty((hi - lo, w), np.float32)
+    xe = np.empty((hi - lo, w), np.float32)
+    shift = np.float32(128.0)
+    own = 0.0
+    for i in range(hi - lo):
+        src = lo + i
+        src = -1 - src if src < 0 else (2 * h - 1 - src if src >= h else src)  # "reflect"
+        xr, yr, e1, e2, e3 = x[src], y[src], es[i], ee[i], xe[i]
+        for j in range(w):  # along a contiguous row: the form the compiler vectorizes
+            xv = np.float32(xr[j])
+            d = np.float32(yr[j]) - xv
+            e1[j] = d
+            e2[j] = d * d
+            e3[j] = (xv - shift) * d
+        if RADIUS <= i < RADIUS + stop - start:
+            own += _row_sum(e2)
+    return es, ee, xe, own
+
+
+@kernel
+def _row_sum(row):
+    """Sum of a float32 row in float64, in eight interleaved partial sums: independent lanes the
+    compiler can vectorize, where one running sum would wait on every addition."""
+    lanes = np.zeros(8, np.float64)
+    n = row.size - row.size % 8
+    for j in range(0, n, 8):
+        for t in range(8):
+            lanes[t] += row[j + t]
+    total = 0.0
+    for j in range(n, row.size):
+        total += row[j]
+    return total + lanes.sum()
+
+
+@kernel
+def _ssim_formula(ux, var_x, ue, ee, sxe):
+    """Eq. (13) per pixel from the filtered moments, in float32.
+
+    Rewritten in the error e = y - x, which is small: with sigma_xy = sigma_x^2 + sigma_xe and
+    sigma_y^2 = sigma_x^2 + 2 sigma_xe + sigma_e^2, the luminance factor is n1 / (n1 + mu_e^2) with
+    n1 = 2 mu_x mu_y + C1, and the contrast-structure factor is n2 / (n2 + sigma_e^2) with
+    n2 = 2 sigma_x^2 + 2 sigma_xe + C2. Filtering e, e^2 and (x - 128) e avoids the float32
+    cancellation of filtering y^2 and x y directly. ``ee`` holds the filtered e^2 and ``sxe`` the
+    filtered (x - 128) e; the reference's mean is ``ux`` and its variance ``var_x``.
+    """
+    out = np.empty(ux.shape, np.float32)
+    mean_x, vx, mean_e, e2, xe, o = ux.ravel(), var_x.ravel(), ue.ravel(), ee.ravel(), sxe.ravel(), out.ravel()
+    shift, two = np.float32(128.0), np.float32(2.0)
+    c1, c2 = np.float32(C1), np.float32(C2)
+    for k in range(o.size):
+        mx, me = mean_x[k], mean_e[k]
+        cov_xe = xe[k] - (mx - shift) * me  # sigma_xe
+        var_e = e2[k] - me * me  # sigma_e^2
+        n1 = (mx + me) * mx * two + c1
+        n2 = (vx[k] + cov_xe) * two + c2
+        o[k] = (n1 * n2) / ((me * me + n1) * (var_e + n2))
+    return out
 
 
 def _tile_means(strip: np.ndarray) -> np.ndarray:

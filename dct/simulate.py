@@ -32,7 +32,8 @@ from typing import Iterable
 import numpy as np
 
 from . import color, damage, entropy, quality
-from .integer_dct import forward_dct_islow, inverse_dct_islow_transposed
+from .integer_dct import forward_dct_islow, inverse_dct_islow_plane
+from .jit import kernel
 from .tables import SAMPLING_FACTORS, UNZIGZAG, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
 from .transform import BLOCK
 
@@ -119,20 +120,24 @@ def quantize(coefficients: np.ndarray, table: np.ndarray) -> np.ndarray:
     """
     fq, c, r = reciprocal_divisors(table)
     t = np.asarray(coefficients)
+    if t.shape[-1] != 64:
+        raise ValueError(f"coefficients must have 64 per block on the last axis, got shape {t.shape!r}")
     out = np.empty(t.shape, dtype=np.int16)
-    flat_in, flat_out = t.reshape(-1, t.shape[-1]), out.reshape(-1, t.shape[-1])
-    for s in range(0, flat_in.shape[0], _QUANTIZE_CHUNK):  # int32 products, a chunk at a time
-        part = flat_in[s : s + _QUANTIZE_CHUNK]
-        mag = np.abs(part, dtype=np.int32)
-        mag += c
-        mag *= fq
-        mag >>= r
-        mag *= np.sign(part)  # the sign back (a masked negate is several times slower)
-        flat_out[s : s + _QUANTIZE_CHUNK] = mag
+    _quantize(np.ascontiguousarray(t).reshape(-1, 64), fq, c, r, out.reshape(-1, 64))
     return out
 
 
-_QUANTIZE_CHUNK = 1 << 16  # blocks
+@kernel
+def _quantize(coefficients, fq, c, r, out):
+    """((|t| + c) * fq) >> r with t's sign, in int32 as libjpeg computes it."""
+    for b in range(coefficients.shape[0]):
+        for k in range(64):
+            t = np.int32(coefficients[b, k])
+            q = ((abs(t) + c[k]) * fq[k]) >> r[k]
+            out[b, k] = q if t > 0 else (-q if t < 0 else 0)
+
+
+
 
 
 def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
@@ -189,36 +194,6 @@ def _scan(luma_q: np.ndarray, chroma_q: tuple[np.ndarray, np.ndarray] | None, su
 
 
 _SCAN_BAND_BLOCKS = 1 << 15  # blocks per band of MCU rows
-
-
-def _decode_plane(q: np.ndarray, table_natural: np.ndarray, rows: int, cols: int) -> np.ndarray:
-    """Dequantize zigzag blocks, integer inverse DCT and crop one component to rows x cols; uint8.
-
-    Block row by block row in chunks, so no full-size dequantized copy is made."""
-    nby, nbx, _ = q.shape
-    # q * Q stays within +-1024 + Q; blocks are gathered transposed, as the inverse DCT reads them
-    table_t = np.asarray(table_natural, dtype=np.int16).reshape(8, 8).T.reshape(64)
-    plane = np.empty((rows, cols), dtype=np.uint8)
-    step = max(1, _DECODE_CHUNK // nbx)
-    for by in range(0, nby, step):
-        top = by * BLOCK
-        if top >= rows:
-            break
-        band = q[by : by + step]
-        # A C-ordered copy, dequantized in place (fancy indexing along the last axis would give a
-        # column-major one, which the inverse DCT's float conversion then copies twice over).
-        deq = np.take(band.reshape(-1, 64), _UNZIGZAG_TRANSPOSED, axis=1)
-        deq *= table_t
-        blocks = inverse_dct_islow_transposed(deq.reshape(-1, 8, 8))
-        n = band.shape[0]
-        pixels = blocks.reshape(n, nbx, BLOCK, BLOCK).transpose(0, 2, 1, 3).reshape(n * BLOCK, nbx * BLOCK)
-        plane[top : top + n * BLOCK] = pixels[: rows - top, :cols]
-    return plane
-
-
-_DECODE_CHUNK = 1 << 14  # blocks per inverse-DCT chunk
-# Zigzag position of each coefficient of a transposed block ([column, row] order).
-_UNZIGZAG_TRANSPOSED = UNZIGZAG.reshape(8, 8).T.reshape(64)
 
 
 def _blocks(plane: np.ndarray) -> np.ndarray:
@@ -447,14 +422,14 @@ class PreparedImage:
     def _decode_luma(self, table: np.ndarray) -> np.ndarray:
         # The luma blocks, their quantization and inverse DCT do not depend on the subsampling mode.
         return self._luma_planes.get(
-            table.tobytes(), lambda: _decode_plane(self._quantized_luma(table), table, self.height, self.width)
+            table.tobytes(), lambda: inverse_dct_islow_plane(self._quantized_luma(table), table, self.height, self.width)
         )
 
     def _decode_chroma(self, table: np.ndarray, subsampling: str) -> _ChromaDecode:
         def decode() -> _ChromaDecode:
             h, v = SAMPLING_FACTORS[subsampling]
             rows, cols = _ceil_div(self.height, v), _ceil_div(self.width, h)
-            planes = [color.upsample(_decode_plane(q, table, rows, cols), h, v, self.height, self.width)
+            planes = [color.upsample(inverse_dct_islow_plane(q, table, rows, cols), h, v, self.height, self.width)
                       for q in self._quantized_chroma(table, subsampling)]
             return _ChromaDecode((planes[0], planes[1]))
 

@@ -155,8 +155,10 @@ def test_missing_code_is_an_error():
         entropy.coded_bits(counts, entropy.STD_LENGTHS["dc_luma"])
 
 
-def test_entropy_coded_bytes_in_chunks_equal_one_pass(monkeypatch):
-    """Chunking the bit assembly (bounded memory on large images) changes no byte or stuffing count."""
+def test_entropy_coded_bytes_equal_a_bit_string_oracle():
+    """The compiled bit assembly against the textbook way (T.81 F.1.2.3): write every code and its
+    magnitude bits as a string of '0'/'1', pad the last byte with 1-bits, cut into bytes and count
+    the 0xFF ones (each gets a stuffed 0x00)."""
     import numpy as np
 
     from dct import entropy
@@ -165,12 +167,23 @@ def test_entropy_coded_bytes_in_chunks_equal_one_pass(monkeypatch):
     blocks = np.zeros((300, 64), np.int32)
     blocks[:, :12] = rng.integers(-40, 41, size=(300, 12))
     blocks[:, 0] = rng.integers(-900, 900, size=300)
-    scan = entropy.scan_symbols(blocks, np.zeros(300, np.int8), (0,))
+    blocks[::7, 40] = rng.integers(-3, 4, size=blocks[::7].shape[0])  # runs over 15 zeros: ZRLs
+    blocks[::11, 63] = 1  # blocks that end without an EOB
+    component = np.tile(np.array([0, 0, 1, 2], np.int8), 75)
+    scan = entropy.scan_symbols(blocks, component, (0, 1, 1))
     tables = [entropy.canonical_codes(*entropy.optimal_table(scan.counts(t)), 16 if t % 2 == 0 else 256)
-              for t in range(2)]
-    whole = entropy.entropy_coded_bytes(scan, tables)
-    monkeypatch.setattr(entropy, "_EVENT_CHUNK", 7)
-    assert entropy.entropy_coded_bytes(scan, tables) == whole
+              for t in range(4)]
+    bits = []
+    for t, sym, extra, n in zip(scan.table, scan.symbol, scan.extra, scan.extra_len):
+        codes, lengths = tables[t]
+        bits.append(format(int(codes[sym]), f"0{int(lengths[sym])}b"))
+        if n:
+            bits.append(format(int(extra), f"0{int(n)}b"))
+    stream = "".join(bits)
+    stream += "1" * (-len(stream) % 8)
+    data = [int(stream[i : i + 8], 2) for i in range(0, len(stream), 8)]
+    assert data.count(0xFF) > 0  # the case under test occurs
+    assert entropy.entropy_coded_bytes(scan, tables) == (len(data) + data.count(0xFF), data.count(0xFF))
 
 
 def test_scan_symbols_in_chunks_equal_one_pass(monkeypatch):

@@ -168,8 +168,6 @@ def test_bands_and_chunks_give_libjpegs_file_and_pixels(monkeypatch, sub):
     sim_module = __import__("sys").modules["dct.simulate"]
     img = np.ascontiguousarray(data.coffee()[5:228, 3:301])  # 298 x 223: partial MCUs both ways
     setting = dct.Setting(70, 64, sub)
-    monkeypatch.setattr(sim_module, "_QUANTIZE_CHUNK", 5)
-    monkeypatch.setattr(sim_module, "_DECODE_CHUNK", 3)
     monkeypatch.setattr(sim_module, "_SCAN_BAND_BLOCKS", 1)
     sim = dct.PreparedImage(img).evaluate(setting, want_arrays=True)
     luma, chroma = setting.tables()

@@ -1,0 +1,24 @@
+"""Compiled loops for the engine's per-setting passes: the one place that configures numba.
+
+Most of the engine is whole-array numpy. A few steps are loops over blocks or pixels that numpy can
+only express as a dozen whole-array passes with temporaries (the scan's symbols in coding order,
+the bit assembly that counts 0xFF stuffing, libjpeg's inverse DCT with its per-column shortcut, the
+SSIM formula after filtering). Those are written as plain Python loops and compiled by numba on
+first use. What they must equal does not change: tests/test_exact.py holds them to libjpeg's bytes
+and Pillow's decoded pixels, and the modules' own tests to their numpy definitions.
+
+* ``cache=True``: compiled code is kept on disk (next to the module, or in numba's per-user cache
+  when that folder is read-only), so a new worker process loads it instead of compiling again.
+* ``nogil=True``: a kernel releases the GIL, so threads in one process (the web app's background
+  sweep) do not stall each other.
+* No ``parallel``: a sweep already runs one image per core (``dct.threads``).
+* No ``fastmath``: floating-point kernels keep IEEE order, so they round as the numpy they replace.
+* ``error_model="numpy"``: a float division by zero gives inf or nan as numpy's does, instead of a
+  check per division that would keep the loops from being vectorized.
+"""
+
+from __future__ import annotations
+
+import numba
+
+kernel = numba.njit(cache=True, nogil=True, error_model="numpy")
