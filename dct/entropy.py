@@ -131,6 +131,8 @@ class Scan:
         for negative v).
     extra_len : ndarray, shape (E,), int8 — how many magnitude bits (the category SSSS).
     groups : int — how many Huffman table pairs the scan uses.
+    histogram : ndarray, shape (2 * groups, 256), int64 — the events counted per table and symbol.
+    extra_bits : ndarray, shape (groups,), int64 — magnitude bits per table pair.
     """
 
     table: np.ndarray
@@ -138,15 +140,15 @@ class Scan:
     extra: np.ndarray
     extra_len: np.ndarray
     groups: int
+    histogram: np.ndarray
+    extra_bits: np.ndarray
 
     def counts(self, table: int) -> np.ndarray:
         """Symbol counts of one table: shape (16,) for DC tables, (256,) for AC tables."""
-        size = 16 if table % 2 == 0 else 256
-        return np.bincount(self.symbol[self.table == table], minlength=size)[:size].astype(np.int64)
+        return self.histogram[table, : 16 if table % 2 == 0 else 256].copy()
 
     def stats(self, group: int) -> SymbolStats:
-        sel = (self.table == 2 * group) | (self.table == 2 * group + 1)
-        return SymbolStats(self.counts(2 * group), self.counts(2 * group + 1), int(self.extra_len[sel].sum()))
+        return SymbolStats(self.counts(2 * group), self.counts(2 * group + 1), int(self.extra_bits[group]))
 
 
 def scan_symbols(blocks: np.ndarray, component: np.ndarray, group_of_component: tuple[int, ...]) -> Scan:
@@ -180,8 +182,8 @@ def scan_chunks(chunks, group_of_component: tuple[int, ...]) -> Scan:
         parts.append(_scan_part(np.ascontiguousarray(chunk), comp, group_of_component, previous))
     if len(parts) == 1:
         return parts[0]
-    return Scan(*(np.concatenate([getattr(p, name) for p in parts]) for name in ("table", "symbol", "extra", "extra_len")),
-                parts[0].groups)
+    events = (np.concatenate([getattr(p, name) for p in parts]) for name in ("table", "symbol", "extra", "extra_len"))
+    return Scan(*events, parts[0].groups, sum(p.histogram for p in parts), sum(p.extra_bits for p in parts))
 
 
 _SCAN_CHUNK = 1 << 15
@@ -195,32 +197,23 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
         if blocks.size and np.abs(blocks).max() > np.iinfo(np.int16).max:
             raise ValueError(f"coefficient magnitude {int(np.abs(blocks).max())} is beyond baseline JPEG's range")
         blocks = blocks.astype(np.int16)
+    blocks = np.ascontiguousarray(blocks)
     component = np.ascontiguousarray(component, dtype=np.int8)
     group = np.asarray(group_of_component, dtype=np.int8)
-    events = _count_events(blocks)
-    table = np.empty(events, np.int8)
-    symbol = np.empty(events, np.int16)
-    extra = np.empty(events, np.int32)
-    extra_len = np.empty(events, np.int8)
-    if _fill_events(blocks, component, group, previous_dc, table, symbol, extra, extra_len) < 0:
+    groups = len(set(group_of_component))
+    # Room for every event: a DC per block, one per AC non-zero, at most 3 ZRLs and an EOB per block.
+    room = np.count_nonzero(blocks) + 5 * blocks.shape[0]
+    table = np.empty(room, np.int8)
+    symbol = np.empty(room, np.int16)
+    extra = np.empty(room, np.int32)
+    extra_len = np.empty(room, np.int8)
+    histogram = np.zeros((2 * groups, 256), np.int64)
+    extra_bits = np.zeros(groups, np.int64)
+    words = blocks.view(np.int64).reshape(blocks.shape[0], 16)  # four coefficients a word
+    n = _fill_events(blocks, words, component, group, previous_dc, table, symbol, extra, extra_len, histogram, extra_bits)
+    if n < 0:
         raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
-    return Scan(table, symbol, extra, extra_len, len(set(group_of_component)))
-
-
-@kernel
-def _count_events(blocks):
-    """How many events the blocks' scan has: a DC each, ZRLs and a symbol per AC non-zero, EOBs."""
-    events = 0
-    for b in range(blocks.shape[0]):
-        events += 1
-        last = 0
-        for k in range(1, 64):
-            if blocks[b, k] != 0:
-                events += ((k - last - 1) >> 4) + 1
-                last = k
-        if last != 63:
-            events += 1
-    return events
+    return Scan(table[:n], symbol[:n], extra[:n], extra_len[:n], groups, histogram, extra_bits)
 
 
 @kernel
@@ -234,9 +227,10 @@ def _category(magnitude):
 
 
 @kernel
-def _fill_events(blocks, component, group, previous_dc, table, symbol, extra, extra_len):
-    """Write the scan's events in coding order (T.81 F.1.2.1 and F.1.2.2); -1 if a DC difference
-    needs more than 16 bits."""
+def _fill_events(blocks, words, component, group, previous_dc, table, symbol, extra, extra_len, histogram, extra_bits):
+    """Write the scan's events in coding order (T.81 F.1.2.1 and F.1.2.2) and count them per table
+    and symbol; their number, or -1 if a DC difference needs more than 16 bits. ``words`` views each
+    block as 16 words of four coefficients, so that runs of zeros are skipped four at a time."""
     e = 0
     for b in range(blocks.shape[0]):
         c = component[b]
@@ -247,36 +241,35 @@ def _fill_events(blocks, component, group, previous_dc, table, symbol, extra, ex
         size = _category(abs(diff))
         if size > 16:
             return -1
-        table[e] = dc_table
-        symbol[e] = size
+        table[e], symbol[e], extra_len[e] = dc_table, size, size
         extra[e] = diff if diff >= 0 else diff + (1 << size) - 1  # negative: v - 1 in SSSS bits
-        extra_len[e] = size
+        histogram[dc_table, size] += 1
+        extra_bits[group[c]] += size
         e += 1
         last = 0
-        for k in range(1, 64):
-            v = np.int64(blocks[b, k])
-            if v == 0:
+        for w in range(16):
+            if words[b, w] == 0:
                 continue
-            run = k - last - 1
-            while run > 15:  # ZRL: sixteen zeros
-                table[e] = dc_table + 1
-                symbol[e] = ZRL
-                extra[e] = 0
-                extra_len[e] = 0
+            for k in range(max(4 * w, 1), 4 * w + 4):
+                v = np.int64(blocks[b, k])
+                if v == 0:
+                    continue
+                run = k - last - 1
+                while run > 15:  # ZRL: sixteen zeros
+                    table[e], symbol[e], extra[e], extra_len[e] = dc_table + 1, ZRL, 0, 0
+                    histogram[dc_table + 1, ZRL] += 1
+                    e += 1
+                    run -= 16
+                size = _category(abs(v))
+                table[e], symbol[e], extra_len[e] = dc_table + 1, (run << 4) | size, size
+                extra[e] = v if v >= 0 else v + (1 << size) - 1
+                histogram[dc_table + 1, (run << 4) | size] += 1
+                extra_bits[group[c]] += size
                 e += 1
-                run -= 16
-            size = _category(abs(v))
-            table[e] = dc_table + 1
-            symbol[e] = (run << 4) | size
-            extra[e] = v if v >= 0 else v + (1 << size) - 1
-            extra_len[e] = size
-            e += 1
-            last = k
+                last = k
         if last != 63:
-            table[e] = dc_table + 1
-            symbol[e] = EOB
-            extra[e] = 0
-            extra_len[e] = 0
+            table[e], symbol[e], extra[e], extra_len[e] = dc_table + 1, EOB, 0, 0
+            histogram[dc_table + 1, EOB] += 1
             e += 1
     return e
 
@@ -328,9 +321,7 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
     lens = np.zeros((len(tables), 256), dtype=np.int64)
     for t, (c, l) in enumerate(tables):
         codes[t, : c.size], lens[t, : l.size] = c, l
-    # The length first, from the symbol histogram (no per-event arrays of the whole scan).
-    used = np.bincount(scan.table.astype(np.intp) * 256 + scan.symbol, minlength=lens.size)[: lens.size]
-    missing = (used > 0) & (lens.ravel() == 0)
+    missing = (scan.histogram > 0) & (lens[: scan.histogram.shape[0]] == 0)
     if np.any(missing):
         raise ValueError(f"symbols {sorted({int(i) % 256 for i in np.flatnonzero(missing)})!r} have no code in the table")
     n_bytes, stuffed = _assemble(scan.table, scan.symbol, scan.extra, scan.extra_len, codes, lens)

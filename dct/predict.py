@@ -279,7 +279,7 @@ def _group_bits(blocks: list[np.ndarray]) -> int:
 
     stacked = np.concatenate(blocks)
     scan = entropy.scan_symbols(stacked, np.zeros(stacked.shape[0], np.int8), (0,))
-    total = int(scan.extra_len.sum())
+    total = int(scan.extra_bits.sum())
     for table in (0, 1):
         counts = scan.counts(table)
         total += entropy.coded_bits(counts, entropy.optimal_code_lengths(counts))

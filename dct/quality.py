@@ -17,13 +17,13 @@ data_range=255)``: the filter truncates at 3.5 sigma (radius 5), borders are mir
 "reflect"), and the mean excludes a 5-pixel border.
 
 Speed: the reference image's mean and variance depend only on the reference, so a
-:class:`ReferenceStats` computes them once; each setting then needs only the three filtered images
-that involve the distorted image (mean, second moment, cross moment). The separable Gaussian runs in
-OpenCV (``cv2.sepFilter2D`` on float32 with ``BORDER_REFLECT``, which mirrors the edge sample as
-scipy's "reflect" does), over row strips with a 5-row halo, so temporary memory stays bounded by a
-strip for any image size. Second moments are taken on level-shifted samples (minus 128) to keep
-float32 cancellation small. OpenCV's own thread pool is left to the caller (``dct.threads``): a
-sweep runs one image per core.
+:class:`ReferenceStats` computes them once (OpenCV's ``cv2.sepFilter2D`` on float32 with
+``BORDER_REFLECT``, which mirrors the edge sample as scipy's "reflect" does). Each setting then needs
+only the three filtered images that involve the distorted image; a compiled loop (``dct.jit``)
+makes them row by row from the error, filters them and applies eq. (13) in one pass
+(:func:`_ssim_rows`), over row strips, so temporary memory stays bounded for any image size. Second
+moments are taken on level-shifted samples (minus 128) to keep float32 cancellation small. OpenCV's
+own thread pool is left to the caller (``dct.threads``): a sweep runs one image per core.
 """
 
 from __future__ import annotations
@@ -44,7 +44,7 @@ C2 = (K2 * L) ** 2
 SIGMA = 1.5
 TRUNCATE = 3.5
 RADIUS = int(TRUNCATE * SIGMA + 0.5)  # 5, as scipy.ndimage computes it
-STRIP = 256  # rows per strip (a multiple of LOCAL_TILE and of every step)
+STRIP = 256  # rows per strip (a multiple of LOCAL_TILE)
 LOCAL_TILE = 16  # side of the tiles whose mean SSIM is the "local" SSIM
 LOCAL_PERCENTILE = 5.0  # the local floor looks at the worst 5 % of tiles
 KEEP_STATS_PIXELS = 4_000_000  # planes up to this keep their reference statistics between comparisons
@@ -100,14 +100,9 @@ class ReferenceStats:
     ----------
     reference : ndarray, shape (H, W)
         Samples on the 0..255 scale (uint8 or float).
-    step : int
-        1 computes the SSIM map at every pixel. 2 evaluates eq. (13) at every other row and column
-        only and averages those samples: the 11x11 window makes the map smooth at that scale, so the
-        mean moves by well under 1e-3 (tests/test_quality.py) for a quarter of the per-pixel work.
-        Eightfold uses 2 for the chroma planes; luma SSIM, its map and the local statistic always use 1.
     """
 
-    def __init__(self, reference: np.ndarray, *, step: int = 1, keep_stats: bool | None = None):
+    def __init__(self, reference: np.ndarray, *, keep_stats: bool | None = None):
         ref = np.asarray(reference)
         if ref.ndim != 2:
             raise ValueError(f"reference must be a 2-D plane, got shape {ref.shape!r}")
@@ -116,32 +111,24 @@ class ReferenceStats:
                 f"SSIM needs a plane of at least {2 * RADIUS + 1}x{2 * RADIUS + 1} pixels for its 11x11 "
                 f"window, got {ref.shape[1]}x{ref.shape[0]}"
             )
-        if step not in (1, 2, 4):
-            raise ValueError(f"step must be 1, 2 or 4, got {step!r}")
         self.shape = ref.shape
-        # Small planes are cheap, and sampling would leave too few interior pixels: use them all.
-        self.step = step = step if min(ref.shape) >= 64 else 1
-        # The plane itself is kept by reference (no copy, uint8 stays uint8); float32 strips are made
-        # on the fly.
-        self.plane = ref if ref.dtype in (np.float32, np.uint8) else ref.astype(np.float32)
+        # The plane itself is kept by reference (no copy, uint8 stays uint8).
+        self.plane = np.ascontiguousarray(ref if ref.dtype in (np.float32, np.uint8) else ref.astype(np.float32))
         # Large planes recompute their mean and variance strip by strip in every comparison (two
-        # more filters of five) instead of keeping 8 bytes per pixel: the same numbers, bounded memory.
+        # more filters) instead of keeping 8 bytes per pixel: the same numbers, bounded memory.
         self.keep_stats = ref.size <= KEEP_STATS_PIXELS if keep_stats is None else bool(keep_stats)
         self.mean = self.var = None
         if self.keep_stats:
-            sampled = (-(-ref.shape[0] // step), -(-ref.shape[1] // step))
-            self.mean = np.empty(sampled, dtype=np.float32)  # mu_x at the sampled pixels
-            self.var = np.empty(sampled, dtype=np.float32)  # sigma_x^2
+            self.mean = np.empty(ref.shape, dtype=np.float32)  # mu_x
+            self.var = np.empty(ref.shape, dtype=np.float32)  # sigma_x^2
             for s, e in self._strips():
-                lo, hi = s // step, -(-e // step)
-                self.mean[lo:hi], self.var[lo:hi] = self._strip_stats(s, e)
+                self.mean[s:e], self.var[s:e] = self._strip_stats(s, e)
 
     def _strip_stats(self, s: int, e: int) -> tuple[np.ndarray, np.ndarray]:
-        """mu_x and sigma_x^2 at the sampled pixels of rows s..e."""
-        step = self.step
+        """mu_x and sigma_x^2 of rows s..e."""
         xs = _rows_with_halo(self.plane, s, e).astype(np.float32) - 128.0
-        ux = _filter(xs)[::step, ::step]
-        xx = _filter(xs * xs)[::step, ::step]
+        ux = _filter(xs)
+        xx = _filter(xs * xs)
         return ux + 128.0, xx - ux * ux
 
     def _strips(self):
@@ -157,64 +144,46 @@ class ReferenceStats:
         ----------
         distorted : ndarray, shape (H, W), on the 0..255 scale
         want_map : bool
-            Also return the full SSIM map (H, W), float32 (``step`` 1 only).
+            Also return the full SSIM map (H, W), float32.
         want_local : bool
             Compute the local statistic (False leaves it NaN and skips the tile means).
         at : ndarray of int, sorted, optional
             Flat pixel indices whose map values to return (``values_at``, float32): what a caller
-            reads of the map without keeping the whole map (``step`` 1 only).
+            reads of the map without keeping the whole map.
 
         Returns
         -------
         SsimResult
-            The mean of the map over the interior, the local statistic (``step`` 1 only: the
-            LOCAL_PERCENTILE of 16x16 tile means of the full-resolution map, whose tile means are
-            kept in ``tile_means``), PSNR, and the map when asked for.
+            The mean of the map over the interior, the local statistic (the LOCAL_PERCENTILE of
+            16x16 tile means of the map, whose tile means are kept in ``tile_means``), PSNR, and
+            the map when asked for.
         """
-        y = np.asarray(distorted)  # converted to float32 strip by strip
+        y = np.asarray(distorted)
         if y.dtype not in (np.uint8, np.float32):
             y = y.astype(np.float32)
+        y = np.ascontiguousarray(y)
         if y.shape != self.shape:
             raise ValueError(f"distorted plane has shape {y.shape!r}, the reference {self.shape!r}")
-        step = self.step
-        if (want_map or at is not None) and step != 1:
-            raise ValueError("the SSIM map needs step=1")
         gathered = []
         if at is not None:
             at = np.asarray(at)
             bounds = np.searchsorted(at, [s * self.shape[1] for s, _ in self._strips()] + [y.size])
         h, w = self.shape
         ssim_map = np.empty(self.shape, dtype=np.float32) if want_map else None
-        # Interior samples (the mean excludes a RADIUS-wide border, as scikit-image crops).
-        first = -(-RADIUS // step)
-        col0, col1 = first, -(-(w - RADIUS) // step)
-        total, count = 0.0, 0
+        taps = gaussian_weights().astype(np.float32)  # 2 * RADIUS + 1 = 11, as _ssim_rows unrolls them
+        total = sq_err = 0.0
         tiles = []
-        sq_err = 0.0
         for number, (s, e) in enumerate(self._strips()):
-            # Eq. (13) in the error e = y - x (see _ssim_formula): filter e, e^2 and (x - 128) e.
-            es, ee, xe, own = _error_moments(self.plane, y, s, e)
-            sq_err += own  # the strip's own rows
-            ue = _filter(es)[::step, ::step]
-            ee = _filter(ee)[::step, ::step]
-            sxe = _filter(xe)[::step, ::step]
-            lo, hi = s // step, -(-e // step)
-            if self.keep_stats:
-                ux, var_x = self.mean[lo:hi], self.var[lo:hi]
-            else:
-                ux, var_x = self._strip_stats(s, e)
-            strip = _ssim_formula(ux, var_x, ue, ee, sxe)  # eq. (13) at the sampled pixels of rows s..e
-            if ssim_map is not None:
-                ssim_map[s:e] = strip
+            ux, var_x = (self.mean[s:e], self.var[s:e]) if self.keep_stats else self._strip_stats(s, e)
+            strip = ssim_map[s:e] if ssim_map is not None else np.empty((e - s, w), dtype=np.float32)
+            squared, interior = _ssim_rows(self.plane, y, s, e, ux, var_x, taps, strip)  # eq. (13), rows s..e
+            sq_err += squared
+            total += interior
             if at is not None:
                 gathered.append(strip.reshape(-1)[at[bounds[number] : bounds[number + 1]] - s * w])
-            r0, r1 = max(lo, first), min(hi, -(-(h - RADIUS) // step))
-            if r1 > r0:
-                inner = strip[r0 - lo : r1 - lo, col0:col1]
-                total += float(inner.sum(dtype=np.float64))
-                count += inner.size
-            if step == 1 and want_local:
+            if want_local:
                 tiles.append(_tile_means(strip))
+        count = (h - 2 * RADIUS) * (w - 2 * RADIUS)  # the mean's interior, cropped as scikit-image crops
         tile_means = np.concatenate(tiles, axis=0) if tiles else None
         return SsimResult(
             ssim=total / count,
@@ -227,30 +196,85 @@ class ReferenceStats:
 
 
 @kernel
-def _error_moments(x, y, start, stop):
-    """e = y - x, e^2 and (x - 128) e over rows start-r .. stop+r of two planes, mirrored past their
-    top and bottom as :func:`_rows_with_halo` mirrors them; float32, plus the sum of e^2 over the
-    strip's own rows (float64), in one pass."""
+def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
+    """Eq. (13) for rows start..stop of the map, into ``out``; returns the sum of e^2 over those rows
+    and the sum of the map over their interior (a RADIUS-wide border left out), both float64.
+
+    One pass per row, in float32: the moments of the error e = y - x (e, e^2 and (x - 128) e) are
+    made for each input row once, kept in a ring of the 2r + 1 rows the window spans, filtered down
+    the columns and then along the row (the separable Gaussian ``taps``, mirrored past every edge
+    as scipy's "reflect" and OpenCV's ``BORDER_REFLECT`` mirror), and eq. (13) is applied at once.
+    Nothing full-size is made, and each loop runs along a contiguous row, which the compiler
+    vectorizes.
+
+    In e, with sigma_xy = sigma_x^2 + sigma_xe and sigma_y^2 = sigma_x^2 + 2 sigma_xe + sigma_e^2,
+    the luminance factor is n1 / (n1 + mu_e^2) with n1 = 2 mu_x mu_y + C1 and the contrast-structure
+    factor is n2 / (n2 + sigma_e^2) with n2 = 2 sigma_x^2 + 2 sigma_xe + C2. Filtering e, e^2 and
+    (x - 128) e avoids the float32 cancellation of filtering y^2 and x y directly; ``ux`` and
+    ``var_x`` are the reference's mean and variance for the same rows.
+    """
     h, w = x.shape
-    lo, hi = start - RADIUS, stop + RADIUS
-    es = np.empty((hi - lo, w), np.float32)
-    ee = np.empty((hi - lo, w), np.float32)
-    xe = np.empty((hi - lo, w), np.float32)
-    shift = np.float32(128.0)
-    own = 0.0
-    for i in range(hi - lo):
-        src = lo + i
-        src = -1 - src if src < 0 else (2 * h - 1 - src if src >= h else src)  # "reflect"
-        xr, yr, e1, e2, e3 = x[src], y[src], es[i], ee[i], xe[i]
-        for j in range(w):  # along a contiguous row: the form the compiler vectorizes
+    r = 5
+    span = 2 * r + 1
+    ring = np.empty((span, 3, w), np.float32)  # moments of input rows, by row modulo span
+    column = np.empty((3, w + 2 * r), np.float32)  # filtered down the columns, mirrored at both ends
+    along = np.empty((3, w), np.float32)
+    shift, two = np.float32(128.0), np.float32(2.0)
+    c1, c2 = np.float32(C1), np.float32(C2)
+    squared = interior = 0.0
+    for n in range(-2 * r, stop - start):  # output row start + n, once its window's last row is in
+        row = start + n + r  # the input row that arrives now (mirrored below)
+        src = -1 - row if row < 0 else (2 * h - 1 - row if row >= h else row)
+        slot = (row + span) % span
+        err, err2, cross = ring[slot, 0], ring[slot, 1], ring[slot, 2]
+        xr, yr = x[src], y[src]
+        for j in range(w):
             xv = np.float32(xr[j])
             d = np.float32(yr[j]) - xv
-            e1[j] = d
-            e2[j] = d * d
-            e3[j] = (xv - shift) * d
-        if RADIUS <= i < RADIUS + stop - start:
-            own += _row_sum(e2)
-    return es, ee, xe, own
+            err[j] = d
+            err2[j] = d * d
+            cross[j] = (xv - shift) * d
+        if start <= row < stop:
+            squared += _row_sum(err2)
+        if n < 0:
+            continue
+        i = start + n  # every row of its window is in the ring now
+        # The window's 11 taps written out (radius 5, fixed by the paper's settings), so that each
+        # pass is one loop over the row, indexed only by its own counter: the form that vectorizes.
+        t0, t1, t2, t3, t4, t5 = taps[0], taps[1], taps[2], taps[3], taps[4], taps[5]
+        for c in range(3):
+            u0, u1, u2, u3, u4 = (ring[(i - 5 + span) % span, c], ring[(i - 4 + span) % span, c],
+                                  ring[(i - 3 + span) % span, c], ring[(i - 2 + span) % span, c],
+                                  ring[(i - 1 + span) % span, c])
+            mid = ring[(i + span) % span, c]
+            d4, d3, d2, d1, d0 = (ring[(i + 1) % span, c], ring[(i + 2) % span, c], ring[(i + 3) % span, c],
+                                  ring[(i + 4) % span, c], ring[(i + 5) % span, c])
+            col = column[c]
+            middle = col[5 : 5 + w]
+            for j in range(w):  # down the columns
+                middle[j] = (t5 * mid[j] + t0 * (u0[j] + d0[j]) + t1 * (u1[j] + d1[j]) + t2 * (u2[j] + d2[j])
+                             + t3 * (u3[j] + d3[j]) + t4 * (u4[j] + d4[j]))
+            for m in range(5):  # mirror the ends for the pass along the row
+                col[4 - m] = col[5 + m]
+                col[5 + w + m] = col[4 + w - m]
+            l0, l1, l2, l3, l4 = col[0:w], col[1 : 1 + w], col[2 : 2 + w], col[3 : 3 + w], col[4 : 4 + w]
+            r4, r3, r2, r1, r0 = col[6 : 6 + w], col[7 : 7 + w], col[8 : 8 + w], col[9 : 9 + w], col[10 : 10 + w]
+            res = along[c]
+            for j in range(w):  # along the row
+                res[j] = (t5 * middle[j] + t0 * (l0[j] + r0[j]) + t1 * (l1[j] + r1[j]) + t2 * (l2[j] + r2[j])
+                          + t3 * (l3[j] + r3[j]) + t4 * (l4[j] + r4[j]))
+        mean_x, vx, o = ux[n], var_x[n], out[n]
+        mean_e, e2, xe = along[0], along[1], along[2]
+        for j in range(w):
+            mx, me = mean_x[j], mean_e[j]
+            cov_xe = xe[j] - (mx - shift) * me  # sigma_xe
+            var_e = e2[j] - me * me  # sigma_e^2
+            n1 = (mx + me) * mx * two + c1
+            n2 = (vx[j] + cov_xe) * two + c2
+            o[j] = (n1 * n2) / ((me * me + n1) * (var_e + n2))
+        if r <= i < h - r:
+            interior += _row_sum(o[r : w - r])
+    return squared, interior
 
 
 @kernel
@@ -266,31 +290,6 @@ def _row_sum(row):
     for j in range(n, row.size):
         total += row[j]
     return total + lanes.sum()
-
-
-@kernel
-def _ssim_formula(ux, var_x, ue, ee, sxe):
-    """Eq. (13) per pixel from the filtered moments, in float32.
-
-    Rewritten in the error e = y - x, which is small: with sigma_xy = sigma_x^2 + sigma_xe and
-    sigma_y^2 = sigma_x^2 + 2 sigma_xe + sigma_e^2, the luminance factor is n1 / (n1 + mu_e^2) with
-    n1 = 2 mu_x mu_y + C1, and the contrast-structure factor is n2 / (n2 + sigma_e^2) with
-    n2 = 2 sigma_x^2 + 2 sigma_xe + C2. Filtering e, e^2 and (x - 128) e avoids the float32
-    cancellation of filtering y^2 and x y directly. ``ee`` holds the filtered e^2 and ``sxe`` the
-    filtered (x - 128) e; the reference's mean is ``ux`` and its variance ``var_x``.
-    """
-    out = np.empty(ux.shape, np.float32)
-    mean_x, vx, mean_e, e2, xe, o = ux.ravel(), var_x.ravel(), ue.ravel(), ee.ravel(), sxe.ravel(), out.ravel()
-    shift, two = np.float32(128.0), np.float32(2.0)
-    c1, c2 = np.float32(C1), np.float32(C2)
-    for k in range(o.size):
-        mx, me = mean_x[k], mean_e[k]
-        cov_xe = xe[k] - (mx - shift) * me  # sigma_xe
-        var_e = e2[k] - me * me  # sigma_e^2
-        n1 = (mx + me) * mx * two + c1
-        n2 = (vx[k] + cov_xe) * two + c2
-        o[k] = (n1 * n2) / ((me * me + n1) * (var_e + n2))
-    return out
 
 
 def _tile_means(strip: np.ndarray) -> np.ndarray:

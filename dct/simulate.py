@@ -38,9 +38,6 @@ from .tables import SAMPLING_FACTORS, UNZIGZAG, ZIGZAG, Setting, check_subsampli
 from .transform import BLOCK
 
 MIN_SIDE = 2 * quality.RADIUS + 1  # SSIM's 11x11 window must fit
-# Chroma SSIM uses every pixel of its map: sampling every other one (a quarter of the work) strayed up
-# to 2e-3 from the full mean on small images at low quality, past the 1e-3 the exactness tests allow.
-CHROMA_SSIM_STEP = 1
 # libjpeg's DCTELEM is 16 bits wide in SIMD builds (what Pillow's wheels ship); its reciprocal
 # quantizer's shift depends on that width.
 _DCTELEM_BITS = 16
@@ -403,8 +400,8 @@ class PreparedImage:
     def _chroma_reference(self) -> tuple[quality.ReferenceStats, quality.ReferenceStats]:
         if self._chroma_ref is None:
             self._chroma_ref = (
-                quality.ReferenceStats(self._planes[1], step=CHROMA_SSIM_STEP),
-                quality.ReferenceStats(self._planes[2], step=CHROMA_SSIM_STEP),
+                quality.ReferenceStats(self._planes[1]),
+                quality.ReferenceStats(self._planes[2]),
             )
         return self._chroma_ref
 

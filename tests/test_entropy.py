@@ -155,50 +155,82 @@ def test_missing_code_is_an_error():
         entropy.coded_bits(counts, entropy.STD_LENGTHS["dc_luma"])
 
 
-def test_entropy_coded_bytes_equal_a_bit_string_oracle():
-    """The compiled bit assembly against the textbook way (T.81 F.1.2.3): write every code and its
-    magnitude bits as a string of '0'/'1', pad the last byte with 1-bits, cut into bytes and count
-    the 0xFF ones (each gets a stuffed 0x00)."""
+def _textbook_scan_bits(blocks, component, group_of_component, tables) -> str:
+    """The scan's bits as a string of '0'/'1', written the textbook way (T.81 F.1.2.1-F.1.2.3):
+    per block the DC difference's category code and its bits, then per AC non-zero a ZRL per 16
+    zeros before it and the run/size code with its bits, then EOB unless coefficient 63 is non-zero."""
+    def bits(value, size):  # negative values: v - 1 in size bits
+        return format(value if value >= 0 else value + (1 << size) - 1, f"0{size}b") if size else ""
+
+    def code(table, symbol):
+        codes, lengths = tables[table]
+        assert lengths[symbol] > 0
+        return format(int(codes[symbol]), f"0{int(lengths[symbol])}b")
+
+    out, previous = [], {}
+    for block, c in zip(blocks.tolist(), component.tolist()):
+        g = group_of_component[c]
+        diff = block[0] - previous.get(c, 0)
+        previous[c] = block[0]
+        size = abs(diff).bit_length()
+        out += [code(2 * g, size), bits(diff, size)]
+        run = 0
+        for k in range(1, 64):
+            if block[k] == 0:
+                run += 1
+                continue
+            while run > 15:
+                out.append(code(2 * g + 1, 0xF0))
+                run -= 16
+            size = abs(block[k]).bit_length()
+            out += [code(2 * g + 1, (run << 4) | size), bits(block[k], size)]
+            run = 0
+        if run:
+            out.append(code(2 * g + 1, 0x00))
+    return "".join(out)
+
+
+def _random_scan_blocks(seed: int, n: int = 300):
     import numpy as np
 
-    from dct import entropy
-
-    rng = np.random.default_rng(9)
-    blocks = np.zeros((300, 64), np.int32)
-    blocks[:, :12] = rng.integers(-40, 41, size=(300, 12))
-    blocks[:, 0] = rng.integers(-900, 900, size=300)
+    rng = np.random.default_rng(seed)
+    blocks = np.zeros((n, 64), np.int32)
+    blocks[:, :12] = rng.integers(-40, 41, size=(n, 12))
+    blocks[:, 0] = rng.integers(-900, 900, size=n)
     blocks[::7, 40] = rng.integers(-3, 4, size=blocks[::7].shape[0])  # runs over 15 zeros: ZRLs
     blocks[::11, 63] = 1  # blocks that end without an EOB
-    component = np.tile(np.array([0, 0, 1, 2], np.int8), 75)
-    scan = entropy.scan_symbols(blocks, component, (0, 1, 1))
+    component = np.tile(np.array([0, 0, 1, 2], np.int8), n // 4)
+    return blocks, component
+
+
+def test_entropy_coded_bytes_equal_a_textbook_encoder():
+    """The compiled scan (statistics, then the bit walk that counts stuffing) against a plain Python
+    encoder written from T.81: the same bits, padded with 1-bits, cut into bytes, a 0x00 stuffed
+    after each 0xFF."""
+    blocks, component = _random_scan_blocks(9)
+    groups = (0, 1, 1)
+    scan = entropy.scan_symbols(blocks, component, groups)
     tables = [entropy.canonical_codes(*entropy.optimal_table(scan.counts(t)), 16 if t % 2 == 0 else 256)
               for t in range(4)]
-    bits = []
-    for t, sym, extra, n in zip(scan.table, scan.symbol, scan.extra, scan.extra_len):
-        codes, lengths = tables[t]
-        bits.append(format(int(codes[sym]), f"0{int(lengths[sym])}b"))
-        if n:
-            bits.append(format(int(extra), f"0{int(n)}b"))
-    stream = "".join(bits)
+    stream = _textbook_scan_bits(blocks, component, groups, tables)
     stream += "1" * (-len(stream) % 8)
     data = [int(stream[i : i + 8], 2) for i in range(0, len(stream), 8)]
     assert data.count(0xFF) > 0  # the case under test occurs
     assert entropy.entropy_coded_bytes(scan, tables) == (len(data) + data.count(0xFF), data.count(0xFF))
 
 
-def test_scan_symbols_in_chunks_equal_one_pass(monkeypatch):
-    """Chunking the symbol extraction (DC prediction carried across chunks) changes no event."""
+def test_scan_in_pieces_equals_one_pass():
+    """A scan given in pieces (bounded memory on large images; DC prediction carried across them)
+    has the statistics and the coded length of the scan given whole."""
     import numpy as np
 
-    from dct import entropy
-
-    rng = np.random.default_rng(4)
-    blocks = np.zeros((90, 64), np.int32)
-    blocks[:, :20] = rng.integers(-6, 7, size=(90, 20))
-    blocks[:, 0] = rng.integers(-500, 500, size=90)
-    component = np.tile(np.array([0, 0, 0, 0, 1, 2], np.int8), 15)
-    whole = entropy.scan_symbols(blocks, component, (0, 1, 1))
-    monkeypatch.setattr(entropy, "_SCAN_CHUNK", 7)
-    parts = entropy.scan_symbols(blocks, component, (0, 1, 1))
-    for name in ("table", "symbol", "extra", "extra_len"):
-        np.testing.assert_array_equal(getattr(parts, name), getattr(whole, name))
+    blocks, component = _random_scan_blocks(4, 92)
+    groups = (0, 1, 1)
+    whole = entropy.scan_symbols(blocks, component, groups)
+    cuts = [0, 1, 8, 9, 40, 92]
+    parts = entropy.scan_chunks([(blocks[a:b], component[a:b]) for a, b in zip(cuts, cuts[1:])], groups)
+    np.testing.assert_array_equal(parts.histogram, whole.histogram)
+    np.testing.assert_array_equal(parts.extra_bits, whole.extra_bits)
+    tables = [entropy.canonical_codes(*entropy.optimal_table(whole.counts(t)), 16 if t % 2 == 0 else 256)
+              for t in range(4)]
+    assert entropy.entropy_coded_bytes(parts, tables) == entropy.entropy_coded_bytes(whole, tables)
