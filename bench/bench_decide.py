@@ -128,7 +128,8 @@ def per_setting(rgb: np.ndarray, settings: list[Setting]) -> dict:
     out = {}
     with single_threaded():
         prepared = PreparedImage(rgb)
-        prepared.evaluate(settings[0])  # transforms and references, as a sweep pays them once
+        for s in {x.subsampling: x for x in settings}.values():  # transforms, references and compiled
+            prepared.evaluate(s)  # loops, as a sweep pays them once per image or process
         t = time.perf_counter()
         for s in settings:
             prepared.evaluate(s)

@@ -190,28 +190,6 @@ def downsample_component(plane: np.ndarray, h_factor: int, v_factor: int, blocks
     return pad_edges(downsample(full, h_factor, v_factor), 8 * blocks_down, 8 * blocks_across)
 
 
-def _fancy_axis(x: np.ndarray, axis: int, near_weight_bias: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
-    """3 * nearer + further along one axis (edges replicated): the sums for even and odd outputs."""
-    x = np.moveaxis(x, axis, -1)
-    prev = np.concatenate([x[..., :1], x[..., :-1]], axis=-1)
-    nxt = np.concatenate([x[..., 1:], x[..., -1:]], axis=-1)
-    three = 3 * x
-    return np.moveaxis(three + prev + near_weight_bias[0], -1, axis), np.moveaxis(three + nxt + near_weight_bias[1], -1, axis)
-
-
-def _interleave(even: np.ndarray, odd: np.ndarray, axis: int) -> np.ndarray:
-    shape = list(even.shape)
-    shape[axis] *= 2
-    out = np.empty(shape, dtype=even.dtype)
-    idx_even = [slice(None)] * even.ndim
-    idx_odd = [slice(None)] * even.ndim
-    idx_even[axis] = slice(0, None, 2)
-    idx_odd[axis] = slice(1, None, 2)
-    out[tuple(idx_even)] = even
-    out[tuple(idx_odd)] = odd
-    return out
-
-
 def upsample(plane: np.ndarray, h_factor: int, v_factor: int, height: int, width: int) -> np.ndarray:
     """libjpeg's "fancy" upsampling of a decoded chroma plane to full resolution, cropped to (height, width).
 
@@ -228,34 +206,41 @@ def upsample(plane: np.ndarray, h_factor: int, v_factor: int, height: int, width
     """
     if h_factor == 1 and v_factor == 1:
         return np.asarray(plane, dtype=np.uint8)[:height, :width]
-    src = np.asarray(plane)
+    if h_factor != 2 or v_factor not in (1, 2):
+        raise ValueError(f"fancy upsampling doubles the width, and the height or not; got {h_factor}x{v_factor}")
+    src = np.ascontiguousarray(plane, dtype=np.uint8)
+    if not (0 < height <= v_factor * src.shape[0] and 0 < width <= 2 * src.shape[1]):
+        raise ValueError(f"a {width}x{height} plane is not the {h_factor}x{v_factor} upsampling of {src.shape[1]}x{src.shape[0]}")
     out = np.empty((height, width), dtype=np.uint8)
-    # Band by band of input rows, each with a one-row halo (the vertical filter's neighbours), so the
-    # int16 temporaries stay bounded on large images; every output row is computed as in one pass.
-    rows_out = 2 if v_factor == 2 else 1
-    for a in range(0, src.shape[0], _UPSAMPLE_BAND):
-        top = a * rows_out
-        if top >= height:
-            break
-        b = min(a + _UPSAMPLE_BAND, src.shape[0])
-        lo, hi = max(a - 1, 0), min(b + 1, src.shape[0])
-        band = _fancy_rows(src[lo:hi].astype(np.int16), v_factor)[(a - lo) * rows_out : (b - lo) * rows_out]
-        out[top : top + band.shape[0]] = band[: height - top, :width]
+    _fancy(src, v_factor, out)
     return out
 
 
-_UPSAMPLE_BAND = 128  # input rows per band
-
-
-def _fancy_rows(x: np.ndarray, v_factor: int) -> np.ndarray:
-    """Fancy upsampling of whole rows (int16 in; edges replicated), uint8 out, full width."""
-    if v_factor == 1:  # 4:2:2: (3 * nearer + further + {1, 2}) >> 2 across each row
-        even, odd = _fancy_axis(x, 1, (1, 2))
-        return _interleave(even >> 2, odd >> 2, 1).astype(np.uint8)
-    # 4:2:0: column sums 3 * nearer + further, then across with {8, 7} over 16 (at most 4088: int16)
-    above = np.concatenate([x[:1], x[:-1]], axis=0)
-    below = np.concatenate([x[1:], x[-1:]], axis=0)
-    three = 3 * x
-    rows = _interleave(three + above, three + below, 0)  # (2h, w) column sums
-    even, odd = _fancy_axis(rows, 1, (8, 7))
-    return _interleave(even >> 4, odd >> 4, 1).astype(np.uint8)
+@kernel
+def _fancy(src, v_factor, out):
+    """Row by row: for 4:2:0 the column sums 3 * nearer + further input row first (rows replicated
+    at the top and bottom), then across, even outputs (3 * s + left + 8) >> 4 and odd ones
+    (3 * s + right + 7) >> 4; for 4:2:2 the samples themselves with biases 1 and 2 and a shift of 2.
+    Columns are replicated at both ends; the output is cropped to its shape."""
+    height, width = out.shape
+    h, w = src.shape
+    sums = np.empty(w + 2, np.int32)  # with one replicated column at each end
+    line = np.empty(2 * w, np.uint8)
+    even_bias, odd_bias, shift = (8, 7, 4) if v_factor == 2 else (1, 2, 2)
+    for i in range(height):
+        if v_factor == 2:
+            a = i >> 1
+            b = max(a - 1, 0) if i % 2 == 0 else min(a + 1, h - 1)
+            near, far = src[a], src[b]
+            for j in range(w):
+                sums[j + 1] = 3 * np.int32(near[j]) + np.int32(far[j])
+        else:
+            row = src[i]
+            for j in range(w):
+                sums[j + 1] = np.int32(row[j])
+        sums[0], sums[w + 1] = sums[1], sums[w]
+        for j in range(w):
+            s = 3 * sums[j + 1]
+            line[2 * j] = (s + sums[j] + even_bias) >> shift
+            line[2 * j + 1] = (s + sums[j + 2] + odd_bias) >> shift
+        out[i, :] = line[:width]

@@ -125,20 +125,18 @@ class Scan:
 
     Each event is one Huffman symbol followed by its magnitude bits:
 
-    table : ndarray, shape (E,), int8 — ``2 * group + (0 for DC, 1 for AC)``; group 0 is luma, 1 chroma.
-    symbol : ndarray, shape (E,), int16 — DC category, or AC run/size RRRRSSSS (ZRL 0xF0, EOB 0x00).
+    event : ndarray, shape (E,), uint16 — ``256 * table + symbol``: the table is ``2 * group + (0 for
+        DC, 1 for AC)`` (group 0 is luma, 1 chroma), the symbol a DC category SSSS or an AC run/size
+        RRRRSSSS (ZRL 0xF0, EOB 0x00). SSSS magnitude bits follow it.
     extra : ndarray, shape (E,), int32 — the magnitude bits' value (T.81 F.1.2.1: v, or v - 1 masked,
         for negative v).
-    extra_len : ndarray, shape (E,), int8 — how many magnitude bits (the category SSSS).
     groups : int — how many Huffman table pairs the scan uses.
     histogram : ndarray, shape (2 * groups, 256), int64 — the events counted per table and symbol.
     extra_bits : ndarray, shape (groups,), int64 — magnitude bits per table pair.
     """
 
-    table: np.ndarray
-    symbol: np.ndarray
+    event: np.ndarray
     extra: np.ndarray
-    extra_len: np.ndarray
     groups: int
     histogram: np.ndarray
     extra_bits: np.ndarray
@@ -182,8 +180,8 @@ def scan_chunks(chunks, group_of_component: tuple[int, ...]) -> Scan:
         parts.append(_scan_part(np.ascontiguousarray(chunk), comp, group_of_component, previous))
     if len(parts) == 1:
         return parts[0]
-    events = (np.concatenate([getattr(p, name) for p in parts]) for name in ("table", "symbol", "extra", "extra_len"))
-    return Scan(*events, parts[0].groups, sum(p.histogram for p in parts), sum(p.extra_bits for p in parts))
+    return Scan(np.concatenate([p.event for p in parts]), np.concatenate([p.extra for p in parts]), parts[0].groups,
+                sum(p.histogram for p in parts), sum(p.extra_bits for p in parts))
 
 
 _SCAN_CHUNK = 1 << 15
@@ -203,17 +201,15 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
     groups = len(set(group_of_component))
     # Room for every event: a DC per block, one per AC non-zero, at most 3 ZRLs and an EOB per block.
     room = np.count_nonzero(blocks) + 5 * blocks.shape[0]
-    table = np.empty(room, np.int8)
-    symbol = np.empty(room, np.int16)
+    event = np.empty(room, np.uint16)
     extra = np.empty(room, np.int32)
-    extra_len = np.empty(room, np.int8)
     histogram = np.zeros((2 * groups, 256), np.int64)
     extra_bits = np.zeros(groups, np.int64)
     words = blocks.view(np.int64).reshape(blocks.shape[0], 16)  # four coefficients a word
-    n = _fill_events(blocks, words, component, group, previous_dc, table, symbol, extra, extra_len, histogram, extra_bits)
+    n = _fill_events(blocks, words, component, group, previous_dc, event, extra, histogram, extra_bits)
     if n < 0:
         raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
-    return Scan(table[:n], symbol[:n], extra[:n], extra_len[:n], groups, histogram, extra_bits)
+    return Scan(event[:n], extra[:n], groups, histogram, extra_bits)
 
 
 @kernel
@@ -227,7 +223,7 @@ def _category(magnitude):
 
 
 @kernel
-def _fill_events(blocks, words, component, group, previous_dc, table, symbol, extra, extra_len, histogram, extra_bits):
+def _fill_events(blocks, words, component, group, previous_dc, event, extra, histogram, extra_bits):
     """Write the scan's events in coding order (T.81 F.1.2.1 and F.1.2.2) and count them per table
     and symbol; their number, or -1 if a DC difference needs more than 16 bits. ``words`` views each
     block as 16 words of four coefficients, so that runs of zeros are skipped four at a time."""
@@ -241,7 +237,7 @@ def _fill_events(blocks, words, component, group, previous_dc, table, symbol, ex
         size = _category(abs(diff))
         if size > 16:
             return -1
-        table[e], symbol[e], extra_len[e] = dc_table, size, size
+        event[e] = (dc_table << 8) | size
         extra[e] = diff if diff >= 0 else diff + (1 << size) - 1  # negative: v - 1 in SSSS bits
         histogram[dc_table, size] += 1
         extra_bits[group[c]] += size
@@ -256,19 +252,19 @@ def _fill_events(blocks, words, component, group, previous_dc, table, symbol, ex
                     continue
                 run = k - last - 1
                 while run > 15:  # ZRL: sixteen zeros
-                    table[e], symbol[e], extra[e], extra_len[e] = dc_table + 1, ZRL, 0, 0
+                    event[e], extra[e] = ((dc_table + 1) << 8) | ZRL, 0
                     histogram[dc_table + 1, ZRL] += 1
                     e += 1
                     run -= 16
                 size = _category(abs(v))
-                table[e], symbol[e], extra_len[e] = dc_table + 1, (run << 4) | size, size
+                event[e] = ((dc_table + 1) << 8) | (run << 4) | size
                 extra[e] = v if v >= 0 else v + (1 << size) - 1
                 histogram[dc_table + 1, (run << 4) | size] += 1
                 extra_bits[group[c]] += size
                 e += 1
                 last = k
         if last != 63:
-            table[e], symbol[e], extra[e], extra_len[e] = dc_table + 1, EOB, 0, 0
+            event[e], extra[e] = ((dc_table + 1) << 8) | EOB, 0
             histogram[dc_table + 1, EOB] += 1
             e += 1
     return e
@@ -324,25 +320,28 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
     missing = (scan.histogram > 0) & (lens[: scan.histogram.shape[0]] == 0)
     if np.any(missing):
         raise ValueError(f"symbols {sorted({int(i) % 256 for i in np.flatnonzero(missing)})!r} have no code in the table")
-    n_bytes, stuffed = _assemble(scan.table, scan.symbol, scan.extra, scan.extra_len, codes, lens)
+    # Magnitude bits after each symbol: a DC symbol is their count, an AC run/size has it low.
+    symbol = np.arange(256)
+    magnitude = np.array([symbol if t % 2 == 0 else symbol & 15 for t in range(len(tables))])
+    magnitude[::2, 17:] = 0  # DC categories stop at 16
+    n_bytes, stuffed = _assemble(scan.event, scan.extra, (lens + magnitude).ravel(), (codes << magnitude).ravel())
     return n_bytes + stuffed, stuffed
 
 
 @kernel
-def _assemble(table, symbol, extra, extra_len, codes, lens):
+def _assemble(event, extra, field_bits, field_code):
     """Write the scan's bits most significant first into a small accumulator, byte by byte; the
-    byte count (the last one padded with 1-bits) and how many of them are 0xFF."""
+    byte count (the last one padded with 1-bits) and how many of them are 0xFF. Per event kind,
+    ``field_bits`` is its code's length plus its magnitude bits and ``field_code`` its code shifted
+    past them; the event's own magnitude bits fill the gap."""
     acc = np.int64(0)  # never more than 7 + 16 + 16 bits pending
     pending = 0
     n_bytes = 0
     stuffed = 0
-    for i in range(table.shape[0]):
-        t, s = table[i], symbol[i]
-        n = lens[t, s]
-        acc = (acc << n) | codes[t, s]
-        n_extra = extra_len[i]
-        acc = (acc << n_extra) | extra[i]
-        pending += n + n_extra
+    for i in range(event.shape[0]):
+        k = event[i]
+        acc = (acc << field_bits[k]) | field_code[k] | extra[i]
+        pending += field_bits[k]
         while pending >= 8:
             pending -= 8
             if (acc >> pending) & 0xFF == 0xFF:

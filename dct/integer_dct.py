@@ -206,10 +206,9 @@ def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
 def inverse_dct_islow_plane(quantized: np.ndarray, table: np.ndarray, rows: int, cols: int) -> np.ndarray:
     """Dequantize, inverse-DCT (as :func:`inverse_dct_islow`) and assemble one component's plane.
 
-    The compiled path a decoder takes: each block straight from its quantized zigzag coefficients
-    into the output plane, with libjpeg's shortcut for a column whose AC terms are all zero (its
-    outputs are the DC times ``2**PASS1_BITS``, which is what the full pass gives for such a
-    column, so the shortcut changes no value).
+    The compiled path a decoder takes: a block row at a time, straight from its quantized zigzag
+    coefficients into the output plane; the column pass runs over every column of the block row at
+    once, which the compiler vectorizes.
 
     Parameters
     ----------
@@ -236,27 +235,37 @@ def inverse_dct_islow_plane(quantized: np.ndarray, table: np.ndarray, rows: int,
 @kernel
 def _decode_blocks(q, table, unzigzag, plane):
     rows, cols = plane.shape
-    pass1 = CONST_BITS - PASS1_BITS
-    pass2 = CONST_BITS + PASS1_BITS + 3
-    work = np.empty((8, 8), np.int64)  # [row, column] after the column pass
-    coef = np.empty(8, np.int64)
-    for by in range(min(q.shape[0], (rows + 7) // 8)):
-        for bx in range(min(q.shape[1], (cols + 7) // 8)):
-            for c in range(8):  # column pass
-                zero_ac = True
-                for r in range(8):
-                    coef[r] = q[by, bx, unzigzag[8 * r + c]] * table[8 * r + c]
-                    if r and coef[r] != 0:
-                        zero_ac = False
-                if zero_ac:
-                    for r in range(8):
-                        work[r, c] = coef[0] << PASS1_BITS
-                else:
-                    out = _inverse_butterfly(coef)
-                    for r in range(8):
-                        work[r, c] = (out[r] + (1 << (pass1 - 1))) >> pass1
-            for r in range(min(8, rows - 8 * by)):  # row pass, cropped to the plane
-                out = _inverse_butterfly(work[r])
-                for c in range(min(8, cols - 8 * bx)):
-                    v = ((out[c] + (1 << (pass2 - 1))) >> pass2) + 128
-                    plane[8 * by + r, 8 * bx + c] = 0 if v < 0 else (255 if v > 255 else v)
+    nby, nbx = q.shape[0], q.shape[1]
+    width = 8 * nbx
+    pass1, pass2 = CONST_BITS - PASS1_BITS, CONST_BITS + PASS1_BITS + 3
+    half1, half2 = 1 << (pass1 - 1), 1 << (pass2 - 1)
+    # One block row at a time, laid out as the plane is: [row in block, 8 * block + column].
+    coef = np.empty((8, width), np.int64)
+    work = np.empty((8, width), np.int64)
+    line = np.empty(width, np.uint8)
+    for by in range(min(nby, (rows + 7) // 8)):
+        for bx in range(nbx):  # dequantize from zigzag into natural positions
+            block = q[by, bx]
+            for k in range(64):
+                coef[k >> 3, 8 * bx + (k & 7)] = np.int64(block[unzigzag[k]]) * table[k]
+        c0, c1, c2, c3, c4, c5, c6, c7 = coef[0], coef[1], coef[2], coef[3], coef[4], coef[5], coef[6], coef[7]
+        w0, w1, w2, w3, w4, w5, w6, w7 = work[0], work[1], work[2], work[3], work[4], work[5], work[6], work[7]
+        for j in range(width):  # down every column of the block row at once (vectorized)
+            o = _inverse_butterfly((c0[j], c1[j], c2[j], c3[j], c4[j], c5[j], c6[j], c7[j]))
+            w0[j] = (o[0] + half1) >> pass1
+            w1[j] = (o[1] + half1) >> pass1
+            w2[j] = (o[2] + half1) >> pass1
+            w3[j] = (o[3] + half1) >> pass1
+            w4[j] = (o[4] + half1) >> pass1
+            w5[j] = (o[5] + half1) >> pass1
+            w6[j] = (o[6] + half1) >> pass1
+            w7[j] = (o[7] + half1) >> pass1
+        for r in range(min(8, rows - 8 * by)):  # then along each row of each block
+            wr = work[r]
+            for bx in range(nbx):
+                b = 8 * bx
+                o = _inverse_butterfly((wr[b], wr[b + 1], wr[b + 2], wr[b + 3], wr[b + 4], wr[b + 5], wr[b + 6], wr[b + 7]))
+                for c in range(8):
+                    v = ((o[c] + half2) >> pass2) + 128
+                    line[b + c] = 0 if v < 0 else (255 if v > 255 else v)
+            plane[8 * by + r, :] = line[:cols]
