@@ -1,6 +1,6 @@
 """Entropy-coded size of a baseline sequential JPEG file (ITU-T T.81 Annexes F and K).
 
-The size is computed from symbol statistics rather than by writing bits:
+The size comes from the scan's events (symbols and their magnitude bits):
 
 * DC: each block's difference from the previous block of the same component (in coding order) is coded
   as its magnitude category SSSS (F.1.2.1, Table F.1) followed by SSSS extra bits.

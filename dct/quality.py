@@ -214,7 +214,7 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
     ``var_x`` are the reference's mean and variance for the same rows.
     """
     h, w = x.shape
-    r = 5
+    r = RADIUS  # 5: the passes below write the 11 taps out
     span = 2 * r + 1
     ring = np.empty((span, 3, w), np.float32)  # moments of input rows, by row modulo span
     column = np.empty((3, w + 2 * r), np.float32)  # filtered down the columns, mirrored at both ends
