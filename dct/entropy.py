@@ -22,7 +22,6 @@ in Python.
 
 from __future__ import annotations
 
-import heapq
 from dataclasses import dataclass
 
 import numpy as np
@@ -205,8 +204,7 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
     extra = np.empty(room, np.int32)
     histogram = np.zeros((2 * groups, 256), np.int64)
     extra_bits = np.zeros(groups, np.int64)
-    words = blocks.view(np.int64).reshape(blocks.shape[0], 16)  # four coefficients a word
-    n = _fill_events(blocks, words, component, group, previous_dc, event, extra, histogram, extra_bits)
+    n = _fill_events(blocks, _nonzero_masks(blocks), component, group, previous_dc, event, extra, histogram, extra_bits)
     if n < 0:
         raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
     return Scan(event[:n], extra[:n], groups, histogram, extra_bits)
@@ -222,11 +220,32 @@ def _category(magnitude):
     return size
 
 
+# Bit position of a 64-bit word's lowest set bit by a de Bruijn sequence: (b * _DEBRUIJN) >> 58
+# is distinct for each single bit b = 2**k (the classic multiply-and-look-up count of trailing zeros).
+_DEBRUIJN = np.uint64(0x03F79D71B4CB0A89)
+_DEBRUIJN_POSITION = np.zeros(64, np.int64)
+for _k in range(64):
+    _DEBRUIJN_POSITION[((1 << _k) * 0x03F79D71B4CB0A89 % (1 << 64)) >> 58] = _k
+
+
 @kernel
-def _fill_events(blocks, words, component, group, previous_dc, event, extra, histogram, extra_bits):
+def _nonzero_masks(blocks):
+    """Per block, a 64-bit word whose bit k is set where AC coefficient k is non-zero."""
+    masks = np.zeros(blocks.shape[0], np.uint64)
+    for b in range(blocks.shape[0]):
+        block = blocks[b]
+        m = np.uint64(0)
+        for k in range(1, 64):
+            m |= np.uint64(block[k] != 0) << np.uint64(k)
+        masks[b] = m
+    return masks
+
+
+@kernel
+def _fill_events(blocks, masks, component, group, previous_dc, event, extra, histogram, extra_bits):
     """Write the scan's events in coding order (T.81 F.1.2.1 and F.1.2.2) and count them per table
-    and symbol; their number, or -1 if a DC difference needs more than 16 bits. ``words`` views each
-    block as 16 words of four coefficients, so that runs of zeros are skipped four at a time."""
+    and symbol; their number, or -1 if a DC difference needs more than 16 bits. ``masks`` (from
+    :func:`_nonzero_masks`) lead straight from one AC non-zero to the next."""
     e = 0
     for b in range(blocks.shape[0]):
         c = component[b]
@@ -243,26 +262,25 @@ def _fill_events(blocks, words, component, group, previous_dc, event, extra, his
         extra_bits[group[c]] += size
         e += 1
         last = 0
-        for w in range(16):
-            if words[b, w] == 0:
-                continue
-            for k in range(max(4 * w, 1), 4 * w + 4):
-                v = np.int64(blocks[b, k])
-                if v == 0:
-                    continue
-                run = k - last - 1
-                while run > 15:  # ZRL: sixteen zeros
-                    event[e], extra[e] = ((dc_table + 1) << 8) | ZRL, 0
-                    histogram[dc_table + 1, ZRL] += 1
-                    e += 1
-                    run -= 16
-                size = _category(abs(v))
-                event[e] = ((dc_table + 1) << 8) | (run << 4) | size
-                extra[e] = v if v >= 0 else v + (1 << size) - 1
-                histogram[dc_table + 1, (run << 4) | size] += 1
-                extra_bits[group[c]] += size
+        m = masks[b]
+        while m:
+            low = m & (~m + np.uint64(1))  # the lowest set bit
+            m ^= low
+            k = _DEBRUIJN_POSITION[(low * _DEBRUIJN) >> np.uint64(58)]
+            v = np.int64(blocks[b, k])
+            run = k - last - 1
+            while run > 15:  # ZRL: sixteen zeros
+                event[e], extra[e] = ((dc_table + 1) << 8) | ZRL, 0
+                histogram[dc_table + 1, ZRL] += 1
                 e += 1
-                last = k
+                run -= 16
+            size = _category(abs(v))
+            event[e] = ((dc_table + 1) << 8) | (run << 4) | size
+            extra[e] = v if v >= 0 else v + (1 << size) - 1
+            histogram[dc_table + 1, (run << 4) | size] += 1
+            extra_bits[group[c]] += size
+            e += 1
+            last = k
         if last != 63:
             event[e], extra[e] = ((dc_table + 1) << 8) | EOB, 0
             histogram[dc_table + 1, EOB] += 1
@@ -379,22 +397,8 @@ def optimal_table(counts: np.ndarray) -> tuple[tuple[int, ...], tuple[int, ...]]
     if not used:
         return (0,) * MAX_CODE_LENGTH, ()
     symbols = used + [counts.size]  # the reserved pseudo-symbol comes last
-    freqs = [int(counts[s]) for s in used] + [1]
-
-    # Plain Huffman tree by repeated merging (K.2, Figure K.1). The heap key (count, -index) pops the
-    # least count first and, among equal counts, the highest index: libjpeg's choice of c1, then c2.
-    heap = [(f, -i) for i, f in enumerate(freqs)]
-    heapq.heapify(heap)
-    members = {i: [i] for i in range(len(freqs))}
-    depth = [0] * len(freqs)
-    while len(heap) > 1:
-        f1, n1 = heapq.heappop(heap)
-        f2, n2 = heapq.heappop(heap)
-        merged = members.pop(-n1) + members.pop(-n2)
-        for leaf in merged:
-            depth[leaf] += 1
-        members[-n1] = merged
-        heapq.heappush(heap, (f1 + f2, n1))
+    freqs = np.append(counts[used], 1)
+    depth = _huffman_depths(freqs).tolist()
 
     max_len = max(max(depth), MAX_CODE_LENGTH)
     bits = [0] * (max_len + 1)
@@ -419,6 +423,39 @@ def optimal_table(counts: np.ndarray) -> tuple[tuple[int, ...], tuple[int, ...]]
     bits[i] -= 1
     order = sorted(range(len(used)), key=lambda k: (depth[k], symbols[k]))
     return tuple(bits[1 : MAX_CODE_LENGTH + 1]), tuple(symbols[k] for k in order)
+
+
+@kernel
+def _huffman_depths(freqs):
+    """Code length of each node of a plain Huffman tree built by repeated merging (T.81 K.2, Figure
+    K.1). Each merge takes the least count, then the next least; among equal counts the higher
+    index (libjpeg's choice of c1, then c2), and the merged node keeps the first one's index.
+    A chain per node lists the leaves under it, so that a merge deepens them all."""
+    m = freqs.size
+    count = freqs.copy()
+    alive = np.ones(m, np.bool_)
+    depth = np.zeros(m, np.int64)
+    chain = np.full(m, -1, np.int64)  # the next leaf under the same node
+    last = np.arange(m)  # each node's last leaf
+    for _ in range(m - 1):
+        c1 = -1
+        for i in range(m):  # scanning upward, "<=" keeps the highest index among equal counts
+            if alive[i] and (c1 < 0 or count[i] <= count[c1]):
+                c1 = i
+        c2 = -1
+        for i in range(m):
+            if alive[i] and i != c1 and (c2 < 0 or count[i] <= count[c2]):
+                c2 = i
+        count[c1] += count[c2]
+        alive[c2] = False
+        for root in (c1, c2):
+            leaf = root
+            while leaf >= 0:
+                depth[leaf] += 1
+                leaf = chain[leaf]
+        chain[last[c1]] = c2
+        last[c1] = last[c2]
+    return depth
 
 
 def optimal_code_lengths(counts: np.ndarray) -> np.ndarray:
