@@ -3,10 +3,11 @@
 Per setting, on one photo mosaic:
   * the engine's exact evaluation (``PreparedImage.evaluate``) and its forecast, per grid setting;
   * naive brute force: Pillow encode and decode, scikit-image SSIM (luma, Cb, Cr);
-  * fast brute force: Pillow encode and decode, SSIM through OpenCV's separable Gaussian and numpy
-    with the reference statistics cached (``bench.common.OpenCvSsim``), the engine's visible-damage
-    check with its reference cached too; and, for reference only, the same peer borrowing the
-    engine's compiled SSIM (faster than a re-encoding script would be).
+  * fast brute force: Pillow encode and decode (the luma by Pillow's own conversion), SSIM through
+    OpenCV's separable Gaussian and numpy with the reference statistics cached
+    (``bench.common.OpenCvSsim``), the engine's visible-damage check with its reference cached too;
+    and, for reference only, the same peer borrowing the engine's compiled SSIM (faster than a
+    re-encoding script would be).
 
 Per class: 7 photo mosaics, the default grid (912 settings) and default targets.
   * the script: for every cutoff x subsampling it bisects each image's lowest accepting quality with
@@ -85,11 +86,10 @@ class FastBrute:
             return self.seen[s]
         data = encode_jpeg(self.rgb, quality=s.quality, cutoff=s.cutoff, subsampling=s.subsampling)
         with Image.open(io.BytesIO(data)) as im:
-            rgb = np.asarray(im)
+            luma = np.asarray(im.convert("L"))  # the decoded RGB's luma (T.871 weights, as dct.color.luma)
         with Image.open(io.BytesIO(data)) as im:
-            im.draft("YCbCr", im.size)
+            im.draft("YCbCr", im.size)  # libjpeg's own upsampled chroma planes
             planes = np.asarray(im).astype(np.float32).transpose(2, 0, 1)
-        luma = rgb_to_ycbcr(rgb)[0]
         ssim, local, ssim_map = self._ssim(0, luma)
         seen = self.edges.measure(luma, ssim_map)
         m = Measure(len(data), ssim, self._ssim(1, planes[1])[0], self._ssim(2, planes[2])[0],
