@@ -34,7 +34,6 @@ The equality is checked pixel for pixel against Pillow's encoder (coefficients r
 
 from __future__ import annotations
 
-
 import numpy as np
 
 from .jit import kernel

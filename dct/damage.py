@@ -62,7 +62,7 @@ HALO_RADIUS = 4  # px: smooth areas start this far from an edge (ringing there i
 FLAT_RANGE = 8.0  # levels: a raw 5x5 range at most this is "smooth" (block steps show on it)
 BLOCK = 8  # the DCT block side (ITU-T T.81)
 EDGE_PERCENTILE = 2.0
-_BAND_ROWS = 256  # rows per band of the blocking statistic
+_BAND_ROWS = 256  # rows per band of the masks and of the pair counts
 MIN_PIXELS = 48  # fewer edge pixels (or smooth boundary pairs) than this: the statistic is neutral
 # Budget defaults, calibrated on tests/damage_set (README, "The visible-damage check").
 DEFAULT_EDGE_FLOOR = 0.92
@@ -184,7 +184,7 @@ class EdgeReference:
         ref = _plane(reference, "reference")
         self.shape = h, w = ref.shape
         raw = np.asarray(reference)
-        # Kept as given when 8-bit (a quarter of float32's memory); steps convert band by band.
+        # Kept as given when 8-bit (a quarter of float32's memory); the blocking sums read it as it is.
         self.plane = raw if raw.dtype == np.uint8 else ref
         self.edges = np.empty(self.shape, dtype=bool)
         self.smooth = np.empty(self.shape, dtype=bool)

@@ -134,9 +134,6 @@ def _quantize(coefficients, fq, c, r, out):
             out[b, k] = q if t > 0 else (-q if t < 0 else 0)
 
 
-
-
-
 def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
     """Arrange one component's quantized blocks in interleaved-scan coding order.
 
