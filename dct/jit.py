@@ -9,6 +9,7 @@ and Pillow's decoded pixels, and the modules' own tests to their numpy definitio
 
 * ``cache=True``: compiled code is kept on disk (next to the module, or in numba's per-user cache
   when that folder is read-only), so a new worker process loads it instead of compiling again.
+  Where no cache can be kept at all, a kernel is compiled in each process instead of failing.
 * ``nogil=True``: a kernel releases the GIL, so threads in one process (the web app's background
   sweep) do not stall each other.
 * No ``parallel``: a sweep already runs one image per core (``dct.threads``).
@@ -21,4 +22,12 @@ from __future__ import annotations
 
 import numba
 
-kernel = numba.njit(cache=True, nogil=True, error_model="numpy")
+_OPTIONS = dict(nogil=True, error_model="numpy")
+
+
+def kernel(func):
+    """Compile ``func`` with the engine's options, cached on disk where a cache can be kept."""
+    try:
+        return numba.njit(cache=True, **_OPTIONS)(func)
+    except RuntimeError:  # no writable cache location for its source: compiled anew in each process
+        return numba.njit(**_OPTIONS)(func)

@@ -242,6 +242,15 @@ class Forecast:
         size = self.header_bytes + np.interp(qs, size_at, self.bits[subsampling][:, j]) / 8.0
         return luma, cb, cr, size
 
+    def point(self, setting) -> tuple[float, float | None, float | None, float]:
+        """:meth:`column` at one setting, as floats: luma, Cb, Cr SSIM and bytes (kept once computed;
+        the search asks for the same points in every round)."""
+        cache = self.__dict__.setdefault("_points", {})
+        if setting not in cache:
+            col = self.column(setting.cutoff, setting.subsampling, [setting.quality])
+            cache[setting] = tuple(None if c is None else float(c[0]) for c in col)
+        return cache[setting]
+
 
 SYMBOL_BITS = 4.5  # a (run, size) Huffman code, on average: the proxy's shape, not its scale
 EOB_BITS = 3.0

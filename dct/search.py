@@ -173,23 +173,23 @@ class ClassSearch:
             if not chosen:
                 return default
             qs = [p.quality for p in chosen]
-            diffs = [value(points[p], fc.column(p.cutoff, p.subsampling, [p.quality])) for p in chosen]
+            diffs = [value(points[p], fc.point(p)) for p in chosen]
             return np.interp(self.qualities, qs, diffs, right=above)
 
         same_combo = lambda p: (p.cutoff, p.subsampling) == (k, s)  # noqa: E731
         luma = luma + offsets(group(same_combo, lambda p: p.cutoff == k, lambda p: True),
-                              lambda m, col: m.ssim - col[0][0])
+                              lambda m, col: m.ssim - col[0])
         if cb is not None:
             chroma_points = group(same_combo, lambda p: p.subsampling == s)
-            cb = cb + offsets(chroma_points, lambda m, col: m.ssim_cb - col[1][0])
-            cr = cr + offsets(chroma_points, lambda m, col: m.ssim_cr - col[2][0])
+            cb = cb + offsets(chroma_points, lambda m, col: m.ssim_cb - col[1])
+            cr = cr + offsets(chroma_points, lambda m, col: m.ssim_cr - col[2])
         # The other checks' smallest margin, as measured nearby (their own curve, not an offset). They
         # improve with quality, so above the highest point they are not assumed to bind.
         unseen = offsets(group(same_combo), lambda m, col: min(
             [v for name, v in budget.margins(m, t).items() if name not in SEEN_CHECKS], default=1.0),
             default=1.0, above=1.0)
         sized = group(same_combo, lambda p: p.subsampling == s, lambda p: p.cutoff == k, lambda p: True)
-        ratio = offsets(sized, lambda m, col: m.estimated_bytes / col[3][0]) if sized else 1.0
+        ratio = offsets(sized, lambda m, col: m.estimated_bytes / col[3]) if sized else 1.0
         if sized:
             size = size * ratio  # offsets() returned exact/forecast ratios here
         return np.minimum(forecast_slack(luma, cb, cr, t), unseen), size
