@@ -76,10 +76,11 @@ class FastBrute:
         self.seen: dict[Setting, Measure] = {}
 
     def _ssim(self, plane: int, decoded: np.ndarray) -> tuple[float, float, np.ndarray]:
+        """(SSIM, local statistic, map); the chroma planes need only their mean."""
         if self.engine_ssim:
-            r = self.refs[plane].compare(decoded, want_map=plane == 0)
+            r = self.refs[plane].compare(decoded, want_map=plane == 0, want_local=plane == 0)
             return r.ssim, r.local, r.ssim_map
-        return self.refs[plane].compare(decoded)
+        return self.refs[plane].compare(decoded, local=plane == 0)
 
     def measure(self, s: Setting) -> Measure:
         if s in self.seen:

@@ -91,8 +91,9 @@ class OpenCvSsim:
     def _blur(self, plane):
         return cv2.sepFilter2D(plane, cv2.CV_32F, self.taps, self.taps, borderType=cv2.BORDER_REFLECT)
 
-    def compare(self, distorted: np.ndarray) -> tuple[float, float, np.ndarray]:
-        """(mean SSIM over the interior, 5th percentile of 16x16 tile means, the SSIM map)."""
+    def compare(self, distorted: np.ndarray, *, local: bool = True) -> tuple[float, float, np.ndarray]:
+        """(mean SSIM over the interior, 5th percentile of 16x16 tile means or NaN without ``local``,
+        the SSIM map)."""
         e = distorted.astype(np.float32) - 128.0 - self.x
         ue = self._blur(e)
         var_e = self._blur(e * e) - ue * ue
@@ -101,11 +102,14 @@ class OpenCvSsim:
         n1 = 2.0 * mx * (mx + ue) + self.C1
         n2 = 2.0 * (self.vx + cov_xe) + self.C2
         ssim_map = (n1 * n2) / ((n1 + ue * ue) * (n2 + var_e))
+        mean = float(ssim_map[5:-5, 5:-5].mean(dtype=np.float64))
+        if not local:
+            return mean, float("nan"), ssim_map
         h, w = ssim_map.shape
         tops, lefts = np.arange(0, h, 16), np.arange(0, w, 16)
         sums = np.add.reduceat(np.add.reduceat(ssim_map.astype(np.float64), tops, axis=0), lefts, axis=1)
         tiles = sums / np.outer(np.minimum(16, h - tops), np.minimum(16, w - lefts))
-        return float(ssim_map[5:-5, 5:-5].mean(dtype=np.float64)), float(np.percentile(tiles, 5.0)), ssim_map
+        return mean, float(np.percentile(tiles, 5.0)), ssim_map
 
 
 class Timer:

@@ -21,9 +21,10 @@ sums stay below 2**16, inputs below 2**20 (a dequantized coefficient is at most 
 dot product of 8 terms stays below 2**40 < 2**53, and the power-of-two rounding shift is exact too.
 
 The decoder that sweeps run for every setting (:func:`inverse_dct_islow_plane`) is the butterflies
-themselves, compiled (``dct.jit``) and run on int64 scalars block by block: the same integers and the
-same two roundings, without the matrix products' temporaries. tests/test_integer_dct.py holds it
-equal to the matrix form.
+themselves, compiled (``dct.jit``) and run in int64 a block row at a time, the column pass across
+the whole row of blocks at once: the same integers and the same two roundings, without the matrix
+products' temporaries. tests/test_integer_dct.py holds it equal to the matrix form. (The matrix
+builder below calls the same compiled butterflies on arrays of unit vectors.)
 
 Scaling
 -------

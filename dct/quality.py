@@ -112,7 +112,7 @@ class ReferenceStats:
                 f"window, got {ref.shape[1]}x{ref.shape[0]}"
             )
         self.shape = ref.shape
-        # The plane itself is kept by reference (no copy, uint8 stays uint8).
+        # The plane itself is kept as given when contiguous (no copy; uint8 stays uint8).
         self.plane = np.ascontiguousarray(ref if ref.dtype in (np.float32, np.uint8) else ref.astype(np.float32))
         # Large planes recompute their mean and variance strip by strip in every comparison (two
         # more filters) instead of keeping 8 bytes per pixel: the same numbers, bounded memory.
