@@ -88,19 +88,6 @@ def dht_bytes(symbol_count: int) -> int:
     return 2 + 2 + 1 + 16 + symbol_count
 
 
-_CATEGORY = np.zeros(1 << 16, dtype=np.int32)
-for _k in range(1, 17):
-    _CATEGORY[1 << (_k - 1) : 1 << _k] = _k
-
-
-def magnitude_category(values: np.ndarray) -> np.ndarray:
-    """SSSS of T.81 Table F.1 / F.2: the bit length of ``|v|`` (0 for 0), as int32."""
-    mags = np.abs(np.asarray(values, dtype=np.int64))
-    if mags.size and mags.max() >= _CATEGORY.size:
-        raise ValueError(f"coefficient magnitude {int(mags.max())} is beyond baseline JPEG's range")
-    return _CATEGORY[mags]
-
-
 @dataclass
 class SymbolStats:
     """Symbol counts of one Huffman table, plus the magnitude bits that follow the codes.
