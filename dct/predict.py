@@ -29,7 +29,7 @@ with the image beyond ``SAMPLE_BLOCKS`` luma blocks.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -206,6 +206,8 @@ class Forecast:
     bits: dict  # {subsampling: (nq, nk)} forecast entropy-coded bits of the whole image
     header_bytes: int  # markers and tables, roughly
     size_qualities: tuple[int, ...] = ()  # where ``bits`` was forecast (default: ``qualities``)
+    # :meth:`point`'s answers, kept: search rounds ask for the same points again
+    _points: dict = field(default_factory=dict, repr=False, compare=False)
 
     def as_dict(self) -> dict:
         return {
@@ -243,13 +245,11 @@ class Forecast:
         return luma, cb, cr, size
 
     def point(self, setting) -> tuple[float, float | None, float | None, float]:
-        """:meth:`column` at one setting, as floats: luma, Cb, Cr SSIM and bytes (kept once computed;
-        the search asks for the same points in every round)."""
-        cache = self.__dict__.setdefault("_points", {})
-        if setting not in cache:
+        """:meth:`column` at one setting, as floats: luma, Cb, Cr SSIM and bytes."""
+        if setting not in self._points:
             col = self.column(setting.cutoff, setting.subsampling, [setting.quality])
-            cache[setting] = tuple(None if c is None else float(c[0]) for c in col)
-        return cache[setting]
+            self._points[setting] = tuple(None if c is None else float(c[0]) for c in col)
+        return self._points[setting]
 
 
 SYMBOL_BITS = 4.5  # a (run, size) Huffman code, on average: the proxy's shape, not its scale
