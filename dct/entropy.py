@@ -190,21 +190,34 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
     event = np.empty(room, np.uint16)
     extra = np.empty(room, np.int32)
     histogram = np.zeros((2 * groups, 256), np.int64)
-    extra_bits = np.zeros(groups, np.int64)
-    n = _fill_events(blocks, _nonzero_masks(blocks), component, group, previous_dc, event, extra, histogram, extra_bits)
+    n = _fill_events(blocks, _nonzero_masks(blocks), component, group, previous_dc, event, extra, histogram)
     if n < 0:
         raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
+    # Magnitude bits follow from the counts: SSSS is a DC symbol itself, an AC symbol's low nibble.
+    extra_bits = histogram[0::2] @ _DC_SIZE + histogram[1::2] @ _AC_SIZE
     return Scan(event[:n], extra[:n], groups, histogram, extra_bits)
+
+
+_DC_SIZE = np.where(np.arange(256) <= 16, np.arange(256), 0).astype(np.int64)
+_AC_SIZE = (np.arange(256) & 15).astype(np.int64)
 
 
 @kernel
 def _category(magnitude):
     """SSSS (T.81 Tables F.1 and F.2): the bit length of a non-negative magnitude."""
+    if magnitude < _CATEGORY_TABLE_SIZE:
+        return np.int64(_CATEGORY[magnitude])
     size = 0
     while magnitude:
         magnitude >>= 1
         size += 1
     return size
+
+
+# SSSS of every magnitude below 4096 (all an 8-bit baseline AC value and most DC differences reach):
+# a lookup in place of a shift loop whose length the branch predictor cannot guess.
+_CATEGORY_TABLE_SIZE = 4096
+_CATEGORY = np.array([m.bit_length() for m in range(_CATEGORY_TABLE_SIZE)], np.uint8)
 
 
 # Bit position of a 64-bit word's lowest set bit by a de Bruijn sequence: (b * _DEBRUIJN) >> 58
@@ -229,7 +242,7 @@ def _nonzero_masks(blocks):
 
 
 @kernel
-def _fill_events(blocks, masks, component, group, previous_dc, event, extra, histogram, extra_bits):
+def _fill_events(blocks, masks, component, group, previous_dc, event, extra, histogram):
     """Write the scan's events in coding order (T.81 F.1.2.1 and F.1.2.2) and count them per table
     and symbol; their number, or -1 if a DC difference needs more than 16 bits. ``masks`` (from
     :func:`_nonzero_masks`) lead straight from one AC non-zero to the next."""
@@ -246,10 +259,11 @@ def _fill_events(blocks, masks, component, group, previous_dc, event, extra, his
         event[e] = (dc_table << 8) | size
         extra[e] = diff if diff >= 0 else diff + (1 << size) - 1  # negative: v - 1 in SSSS bits
         histogram[dc_table, size] += 1
-        extra_bits[group[c]] += size
         e += 1
         last = 0
         m = masks[b]
+        ac = histogram[dc_table + 1]
+        ac_event = (dc_table + 1) << 8
         while m:
             low = m & (~m + np.uint64(1))  # the lowest set bit
             m ^= low
@@ -257,20 +271,20 @@ def _fill_events(blocks, masks, component, group, previous_dc, event, extra, his
             v = np.int64(blocks[b, k])
             run = k - last - 1
             while run > 15:  # ZRL: sixteen zeros
-                event[e], extra[e] = ((dc_table + 1) << 8) | ZRL, 0
-                histogram[dc_table + 1, ZRL] += 1
+                event[e], extra[e] = ac_event | ZRL, 0
+                ac[ZRL] += 1
                 e += 1
                 run -= 16
             size = _category(abs(v))
-            event[e] = ((dc_table + 1) << 8) | (run << 4) | size
+            symbol = (run << 4) | size
+            event[e] = ac_event | symbol
             extra[e] = v if v >= 0 else v + (1 << size) - 1
-            histogram[dc_table + 1, (run << 4) | size] += 1
-            extra_bits[group[c]] += size
+            ac[symbol] += 1
             e += 1
             last = k
         if last != 63:
-            event[e], extra[e] = ((dc_table + 1) << 8) | EOB, 0
-            histogram[dc_table + 1, EOB] += 1
+            event[e], extra[e] = ac_event | EOB, 0
+            ac[EOB] += 1
             e += 1
     return e
 
@@ -335,29 +349,45 @@ def entropy_coded_bytes(scan: Scan, tables: list[tuple[np.ndarray, np.ndarray]])
 
 @kernel
 def _assemble(event, extra, field_bits, field_code):
-    """Write the scan's bits most significant first into a small accumulator, byte by byte; the
-    byte count (the last one padded with 1-bits) and how many of them are 0xFF. Per event kind,
-    ``field_bits`` is its code's length plus its magnitude bits and ``field_code`` its code shifted
-    past them; the event's own magnitude bits fill the gap."""
-    acc = np.int64(0)  # never more than 7 + 16 + 16 bits pending
-    pending = 0
-    n_bytes = 0
+    """Write the scan's bits most significant first into a 64-bit accumulator and take them out 32 at
+    a time; the byte count (the last one padded with 1-bits) and how many of them are 0xFF. Per event
+    kind, ``field_bits`` is its code's length plus its magnitude bits (at most 32) and ``field_code``
+    its code shifted past them; the event's own magnitude bits fill the gap. Fewer than 32 bits are
+    pending after each event, so the accumulator never loses one that is still to be taken out (older
+    bits shift out past its top)."""
+    acc = np.int64(0)
+    pending = np.int64(0)
+    words = 0
     stuffed = 0
     for i in range(event.shape[0]):
         k = event[i]
         acc = (acc << field_bits[k]) | field_code[k] | extra[i]
         pending += field_bits[k]
-        while pending >= 8:
-            pending -= 8
-            if (acc >> pending) & 0xFF == 0xFF:
-                stuffed += 1
-            n_bytes += 1
-        acc &= (np.int64(1) << pending) - 1
+        if pending >= 32:
+            pending -= 32
+            stuffed += _ff_bytes((acc >> pending) & 0xFFFFFFFF)
+            words += 1
+    n_bytes = 4 * words
+    while pending >= 8:
+        pending -= 8
+        if (acc >> pending) & 0xFF == 0xFF:
+            stuffed += 1
+        n_bytes += 1
     if pending:
         n_bytes += 1
         if ((acc << (8 - pending)) | ((1 << (8 - pending)) - 1)) & 0xFF == 0xFF:
             stuffed += 1
     return n_bytes, stuffed
+
+
+@kernel
+def _ff_bytes(word):
+    """How many of a 32-bit word's four bytes are 0xFF, without a branch: in x = ~word a byte is zero
+    exactly when adding 0x7F to its low seven bits leaves its top bit clear and its own top bit is
+    clear too; those top bits are then summed by one multiplication."""
+    x = ~word & 0xFFFFFFFF
+    zero_tops = ~(((x & 0x7F7F7F7F) + 0x7F7F7F7F) | x | 0x7F7F7F7F) & 0xFFFFFFFF
+    return (((zero_tops >> 7) * 0x01010101) >> 24) & 0xFF
 
 
 def optimal_table(counts: np.ndarray) -> tuple[tuple[int, ...], tuple[int, ...]]:

@@ -173,9 +173,15 @@ class ReferenceStats:
         taps = gaussian_weights().astype(np.float32)  # 2 * RADIUS + 1 = 11, as _ssim_rows unrolls them
         total = sq_err = 0.0
         tiles = []
+        row_buffer = np.empty((1, w), dtype=np.float32)
         for number, (s, e) in enumerate(self._strips()):
             ux, var_x = (self.mean[s:e], self.var[s:e]) if self.keep_stats else self._strip_stats(s, e)
-            strip = ssim_map[s:e] if ssim_map is not None else np.empty((e - s, w), dtype=np.float32)
+            if ssim_map is not None:
+                strip = ssim_map[s:e]
+            elif at is not None or want_local:
+                strip = np.empty((e - s, w), dtype=np.float32)
+            else:  # only the mean is asked for: each row of the map is summed and forgotten
+                strip = row_buffer
             squared, interior = _ssim_rows(self.plane, y, s, e, ux, var_x, taps, strip)  # eq. (13), rows s..e
             sq_err += squared
             total += interior
@@ -198,7 +204,9 @@ class ReferenceStats:
 @kernel
 def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
     """Eq. (13) for rows start..stop of the map, into ``out``; returns the sum of e^2 over those rows
-    and the sum of the map over their interior (a RADIUS-wide border left out), both float64.
+    and the sum of the map over their interior (a RADIUS-wide border left out), both float64. An
+    ``out`` of one row is a scratch row: every row of the map is written there, summed and dropped
+    (no map kept when only the mean is wanted, which saves writing a full-size array).
 
     One pass per row, in float32: the moments of the error e = y - x (e, e^2 and (x - 128) e) are
     made for each input row once, kept in a ring of the 2r + 1 rows the window spans, filtered down
@@ -263,7 +271,7 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
             for j in range(w):  # along the row
                 res[j] = (t5 * middle[j] + t0 * (l0[j] + r0[j]) + t1 * (l1[j] + r1[j]) + t2 * (l2[j] + r2[j])
                           + t3 * (l3[j] + r3[j]) + t4 * (l4[j] + r4[j]))
-        mean_x, vx, o = ux[n], var_x[n], out[n]
+        mean_x, vx, o = ux[n], var_x[n], out[n if out.shape[0] > 1 else 0]
         mean_e, e2, xe = along[0], along[1], along[2]
         for j in range(w):
             mx, me = mean_x[j], mean_e[j]
@@ -294,22 +302,32 @@ def _row_sum(row):
 
 def _tile_means(strip: np.ndarray) -> np.ndarray:
     """Mean SSIM of LOCAL_TILE-sized tiles of a strip (partial edge tiles use their own pixels)."""
+    return _tile_means_of(strip, LOCAL_TILE)
+
+
+@kernel
+def _tile_means_of(strip, t):
+    """t x t tile means of a float32 plane, float64: each band of t rows summed down its columns,
+    then each tile's t column sums added; the partial tiles at the right and bottom edges are
+    divided by their own pixel count."""
     h, w = strip.shape
-    t = LOCAL_TILE
-    ty, tx = -(-h // t), -(-w // t)
-    full_rows, full_cols = h // t, w // t
-    # Sums down each tile row, then across: whole tiles by reshaping, the partial edge ones apart.
-    rows = np.empty((ty, w), dtype=np.float64)
-    rows[:full_rows] = strip[: full_rows * t].reshape(full_rows, t, w).sum(axis=1, dtype=np.float64)
-    if full_rows < ty:
-        rows[-1] = strip[full_rows * t :].sum(axis=0, dtype=np.float64)
-    sums = np.empty((ty, tx), dtype=np.float64)
-    sums[:, :full_cols] = rows[:, : full_cols * t].reshape(ty, full_cols, t).sum(axis=2)
-    if full_cols < tx:
-        sums[:, -1] = rows[:, full_cols * t :].sum(axis=1)
-    counts_down = np.minimum(t, h - np.arange(ty) * t)
-    counts_across = np.minimum(t, w - np.arange(tx) * t)
-    return sums / np.outer(counts_down, counts_across)
+    ty, tx = (h + t - 1) // t, (w + t - 1) // t
+    down = np.empty(w, np.float64)
+    out = np.empty((ty, tx), np.float64)
+    for top in range(0, h, t):
+        bottom = min(top + t, h)
+        down[:] = 0.0
+        for i in range(top, bottom):
+            row = strip[i]
+            for j in range(w):
+                down[j] += row[j]
+        for x in range(tx):
+            left, right = x * t, min(x * t + t, w)
+            total = 0.0
+            for j in range(left, right):
+                total += down[j]
+            out[top // t, x] = total / ((bottom - top) * (right - left))
+    return out
 
 
 class SsimResult:

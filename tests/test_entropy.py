@@ -39,6 +39,12 @@ def test_magnitude_categories_table_f1():
     # T.81 Table F.1: category k holds magnitudes 2^(k-1) .. 2^k - 1.
     v = np.array([0, 1, -1, 2, 3, -4, 7, 8, 1023, -1024, 2047])
     assert [entropy._category(abs(int(x))) for x in v] == [0, 1, 1, 2, 2, 3, 3, 4, 10, 11, 11]
+    # Both sides of the lookup table's end (below it a table, from it on the shift loop).
+    edge = [4095, 4096, 8191, 32767, 65535]
+    assert [entropy._category(m) for m in edge] == [12, 13, 13, 15, 16]
+    # Every tabulated magnitude, against the table's definition: 2^(k-1) <= m < 2^k.
+    for k in range(1, 13):
+        assert {int(entropy._category(m)) for m in range(2 ** (k - 1), 2**k)} == {k}
 
 
 def test_standard_tables_equal_libjpeg_dht():
@@ -207,16 +213,23 @@ def test_entropy_coded_bytes_equal_a_textbook_encoder():
     """The compiled scan (statistics, then the bit walk that counts stuffing) against a plain Python
     encoder written from T.81: the same bits, padded with 1-bits, cut into bytes, a 0x00 stuffed
     after each 0xFF."""
-    blocks, component = _random_scan_blocks(9)
+    all_blocks, all_components = _random_scan_blocks(9)
     groups = (0, 1, 1)
-    scan = entropy.scan_symbols(blocks, component, groups)
-    tables = [entropy.canonical_codes(*entropy.optimal_table(scan.counts(t)), 16 if t % 2 == 0 else 256)
-              for t in range(4)]
-    stream = _textbook_scan_bits(blocks, component, groups, tables)
-    stream += "1" * (-len(stream) % 8)
-    data = [int(stream[i : i + 8], 2) for i in range(0, len(stream), 8)]
+    # Scans of several lengths, so that the bits left over after the last whole 32-bit word of the
+    # assembly take many values (0 to 31) and the padded last byte is checked each way.
+    tails = set()
+    for n in (1, 2, 3, 4, 5, 7, 11, 16, 29, 64, 131, 300):
+        blocks, component = all_blocks[:n], all_components[:n]
+        scan = entropy.scan_symbols(blocks, component, groups)
+        tables = [entropy.canonical_codes(*entropy.optimal_table(scan.counts(t)), 16 if t % 2 == 0 else 256)
+                  for t in range(4)]
+        stream = _textbook_scan_bits(blocks, component, groups, tables)
+        tails.add(len(stream) % 32)
+        stream += "1" * (-len(stream) % 8)
+        data = [int(stream[i : i + 8], 2) for i in range(0, len(stream), 8)]
+        assert entropy.entropy_coded_bytes(scan, tables) == (len(data) + data.count(0xFF), data.count(0xFF)), n
     assert data.count(0xFF) > 0  # the case under test occurs
-    assert entropy.entropy_coded_bytes(scan, tables) == (len(data) + data.count(0xFF), data.count(0xFF))
+    assert len(tails) >= 8
 
 
 def test_scan_in_pieces_equals_one_pass():

@@ -125,3 +125,29 @@ def test_recomputed_reference_statistics_give_the_same_ssim():
     recomputed = ReferenceStats(ref, keep_stats=False).compare(dist, want_map=True)
     assert kept.ssim == recomputed.ssim and kept.local == recomputed.local
     np.testing.assert_array_equal(kept.ssim_map, recomputed.ssim_map)
+
+
+def test_tile_means_equal_each_tiles_own_mean():
+    """The compiled tile means against the definition: the mean of each 16 x 16 tile, the partial
+    tiles at the right and bottom edges over their own pixels."""
+    rng = np.random.default_rng(5)
+    for shape in [(256, 1000), (238, 1001), (16, 16), (17, 33), (5, 7)]:
+        strip = rng.random(shape, dtype=np.float32)
+        got = quality._tile_means(strip)
+        t = quality.LOCAL_TILE
+        want = np.array([[strip[y : y + t, x : x + t].astype(np.float64).mean() for x in range(0, shape[1], t)]
+                         for y in range(0, shape[0], t)])
+        np.testing.assert_allclose(got, want, rtol=1e-12, atol=0)
+
+
+def test_mean_only_comparison_equals_the_full_one():
+    """Without map, tiles or gathered values the map's rows are summed in a scratch row: the same
+    mean and PSNR, to the bit, over several strips."""
+    rng = np.random.default_rng(12)
+    x = rng.integers(0, 256, size=(quality.STRIP * 2 + 19, 75)).astype(np.uint8)
+    y = np.clip(x + rng.normal(0, 9, x.shape), 0, 255).astype(np.uint8)
+    ref = quality.ReferenceStats(x)
+    full = ref.compare(y, want_map=True)
+    mean_only = ref.compare(y, want_local=False)
+    assert mean_only.ssim == full.ssim and mean_only.psnr == full.psnr
+    assert mean_only.ssim_map is None and mean_only.tile_means is None
