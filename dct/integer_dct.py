@@ -21,10 +21,20 @@ sums stay below 2**16, inputs below 2**20 (a dequantized coefficient is at most 
 dot product of 8 terms stays below 2**40 < 2**53, and the power-of-two rounding shift is exact too.
 
 The decoder that sweeps run for every setting (:func:`inverse_dct_islow_plane`) is the butterflies
-themselves, compiled (``dct.jit``) and run in int64 a block row at a time, the column pass across
-the whole row of blocks at once: the same integers and the same two roundings, without the matrix
-products' temporaries. tests/test_integer_dct.py holds it equal to the matrix form. (The matrix
-builder below calls the same compiled butterflies on arrays of unit vectors.)
+themselves, compiled (``dct.jit``) and run a block row at a time, both passes across the whole row
+of blocks at once: the same integers and the same two roundings, without the matrix products'
+temporaries. tests/test_integer_dct.py holds it equal to the matrix form. (The matrix builder below
+runs the same compiled butterflies on each unit input.)
+
+Integer width
+-------------
+The compiled passes wrap every step to 32 bits, which lets the compiler use 32-bit vector lanes
+(as libjpeg-turbo's SIMD code does). That is exact while every dequantized coefficient is within
++-1152 (:data:`LANE_SAFE_COEFFICIENT`): bounding each intermediate of both passes by the L1 norm of
+its weights gives at most 2**30.98 then. A quantizer of 8-bit samples never exceeds it (a
+coefficient of such a block is at most 1024 on the orthonormal scale, and quantization moves it by
+at most half a table entry, 127.5). The compiled decoder checks the bound as it dequantizes and
+hands any other input to the matrix form. tests/test_integer_dct.py recomputes the bound.
 
 Scaling
 -------
@@ -56,6 +66,7 @@ from .tables import UNZIGZAG
 
 CONST_BITS = 13
 PASS1_BITS = 2
+LANE_SAFE_COEFFICIENT = 1152  # dequantized magnitudes up to this keep the 32-bit passes exact
 
 
 def _fix(x: float) -> int:
@@ -77,20 +88,24 @@ FIX_2_562915447 = _fix(2.562915447)  # sqrt(2) * (-c1 - c3)
 FIX_3_072711026 = _fix(3.072711026)  # sqrt(2) * (c1 + c3 + c5 - c7)
 
 
+_i32 = np.int32  # every step of the compiled passes wraps to 32 bits (see "Integer width" above)
+
+
 @kernel
 def _odd_rotations(t4, t5, t6, t7):
     """The odd half of the LL&M flow graph (its figure 8): four inputs, four outputs, 12 products."""
-    z1, z2, z3, z4 = t4 + t7, t5 + t6, t4 + t6, t5 + t7
-    z5 = (z3 + z4) * FIX_1_175875602
-    t4 = t4 * FIX_0_298631336
-    t5 = t5 * FIX_2_053119869
-    t6 = t6 * FIX_3_072711026
-    t7 = t7 * FIX_1_501321110
-    z1 = z1 * -FIX_0_899976223
-    z2 = z2 * -FIX_2_562915447
-    z3 = z3 * -FIX_1_961570560 + z5
-    z4 = z4 * -FIX_0_390180644 + z5
-    return t4 + z1 + z3, t5 + z2 + z4, t6 + z2 + z3, t7 + z1 + z4
+    z1, z2, z3, z4 = _i32(t4 + t7), _i32(t5 + t6), _i32(t4 + t6), _i32(t5 + t7)
+    z5 = _i32(_i32(z3 + z4) * FIX_1_175875602)
+    t4 = _i32(t4 * FIX_0_298631336)
+    t5 = _i32(t5 * FIX_2_053119869)
+    t6 = _i32(t6 * FIX_3_072711026)
+    t7 = _i32(t7 * FIX_1_501321110)
+    z1 = _i32(z1 * -FIX_0_899976223)
+    z2 = _i32(z2 * -FIX_2_562915447)
+    z3 = _i32(_i32(z3 * -FIX_1_961570560) + z5)
+    z4 = _i32(_i32(z4 * -FIX_0_390180644) + z5)
+    return (_i32(_i32(t4 + z1) + z3), _i32(_i32(t5 + z2) + z4), _i32(_i32(t6 + z2) + z3),
+            _i32(_i32(t7 + z1) + z4))
 
 
 def _forward_butterfly(x):
@@ -112,30 +127,33 @@ def _forward_butterfly(x):
 
 
 @kernel
-def _inverse_butterfly(y):
+def _inverse_butterfly(y0, y1, y2, y3, y4, y5, y6, y7):
     """One inverse 1-D pass before rounding: the transpose flow of the forward pass (exact ints)."""
-    z2, z3 = y[2], y[6]
-    z1 = (z2 + z3) * FIX_0_541196100
-    t2 = z1 - z3 * FIX_1_847759065
-    t3 = z1 + z2 * FIX_0_765366865
-    t0 = (y[0] + y[4]) << CONST_BITS
-    t1 = (y[0] - y[4]) << CONST_BITS
-    t10, t13 = t0 + t3, t0 - t3
-    t11, t12 = t1 + t2, t1 - t2
-    o0, o1, o2, o3 = _odd_rotations(y[7], y[5], y[3], y[1])
-    return (t10 + o3, t11 + o2, t12 + o1, t13 + o0, t13 - o0, t12 - o1, t11 - o2, t10 - o3)
+    z1 = _i32(_i32(y2 + y6) * FIX_0_541196100)
+    t2 = _i32(z1 - _i32(y6 * FIX_1_847759065))
+    t3 = _i32(z1 + _i32(y2 * FIX_0_765366865))
+    t0 = _i32(_i32(y0 + y4) << CONST_BITS)
+    t1 = _i32(_i32(y0 - y4) << CONST_BITS)
+    t10, t13 = _i32(t0 + t3), _i32(t0 - t3)
+    t11, t12 = _i32(t1 + t2), _i32(t1 - t2)
+    o0, o1, o2, o3 = _odd_rotations(y7, y5, y3, y1)
+    return (_i32(t10 + o3), _i32(t11 + o2), _i32(t12 + o1), _i32(t13 + o0),
+            _i32(t13 - o0), _i32(t12 - o1), _i32(t11 - o2), _i32(t10 - o3))
 
 
 @lru_cache(maxsize=None)
 def pass_matrix(kind: str) -> np.ndarray:
     """The exact integer 8x8 matrix of one 1-D pass (``"forward"`` or ``"inverse"``), as float64.
 
-    Row k holds the weights of output k before the pass's rounding shift.
+    Row k holds the weights of output k before the pass's rounding shift: the butterflies run on
+    each unit input, whose outputs are one column.
     """
-    butterfly = {"forward": _forward_butterfly, "inverse": _inverse_butterfly.py_func}[kind]
-    unit = np.eye(8, dtype=np.int64)
-    columns = butterfly([unit[i] for i in range(8)])  # output k as a vector of input weights
-    return np.array(columns, dtype=np.float64)
+    columns = []
+    for i in range(8):
+        unit = [0] * 8
+        unit[i] = 1
+        columns.append(_forward_butterfly(unit) if kind == "forward" else _inverse_butterfly(*unit))
+    return np.array(columns, dtype=np.float64).T
 
 
 CHUNK_BLOCKS = 1 << 15  # blocks per matrix product: 16 MiB of float64 per temporary
@@ -207,9 +225,10 @@ def inverse_dct_islow(coefficients: np.ndarray) -> np.ndarray:
 def inverse_dct_islow_plane(quantized: np.ndarray, table: np.ndarray, rows: int, cols: int) -> np.ndarray:
     """Dequantize, inverse-DCT (as :func:`inverse_dct_islow`) and assemble one component's plane.
 
-    The compiled path a decoder takes: a block row at a time, straight from its quantized zigzag
-    coefficients into the output plane; the column pass runs over every column of the block row at
-    once, which the compiler vectorizes.
+    The compiled path a decoder takes, a block row at a time: the row's coefficients are dequantized
+    from zigzag order into one array per natural position, both passes then run across all of the
+    row's blocks at once in 32-bit lanes (which the compiler vectorizes), and each block row of
+    output samples is packed eight to a 64-bit word.
 
     Parameters
     ----------
@@ -226,47 +245,75 @@ def inverse_dct_islow_plane(quantized: np.ndarray, table: np.ndarray, rows: int,
         raise ValueError(f"quantized blocks must have shape (nby, nbx, 64), got {q.shape!r}")
     if not (0 < rows <= 8 * q.shape[0] and 0 < cols <= 8 * q.shape[1]):
         raise ValueError(f"a {rows}x{cols} plane does not fit {q.shape[0]}x{q.shape[1]} blocks")
-    # Each dequantized coefficient is read at its natural position (row-major within the block).
-    dequantize = np.asarray(table, dtype=np.int64).reshape(64)
+    dequantize = np.asarray(table, dtype=np.int32).reshape(64)  # natural order, as the blocks are read
     plane = np.empty((rows, cols), dtype=np.uint8)
-    _decode_blocks(q, dequantize, UNZIGZAG.astype(np.int64), plane)
-    return plane
+    samples = np.empty((8, 8 * q.shape[1]), np.uint8)  # one block row of output, before cropping
+    if _decode_blocks(q, dequantize, UNZIGZAG.astype(np.int64), plane, samples.view(np.uint64), samples):
+        return plane
+    # Coefficients no quantizer of 8-bit samples makes: the matrix form, exact at any magnitude.
+    nby, nbx = q.shape[:2]
+    natural = q[..., UNZIGZAG].astype(np.int64) * dequantize  # zigzag -> natural positions
+    blocks = inverse_dct_islow(natural.reshape(-1, 8, 8)).reshape(nby, nbx, 8, 8)
+    return np.ascontiguousarray(blocks.transpose(0, 2, 1, 3).reshape(8 * nby, 8 * nbx)[:rows, :cols])
 
 
 @kernel
-def _decode_blocks(q, table, unzigzag, plane):
+def _first_pass(o):
+    return _i32(_i32(o + (1 << (CONST_BITS - PASS1_BITS - 1))) >> (CONST_BITS - PASS1_BITS))
+
+
+@kernel
+def _output_sample(o):
+    """The second pass's rounding shift, the +128 level shift and saturation to 0..255 (as a word)."""
+    shift = CONST_BITS + PASS1_BITS + 3
+    v = _i32(_i32(o + (1 << (shift - 1))) >> shift) + 128
+    return np.uint64(min(max(v, 0), 255))
+
+
+@kernel
+def _decode_blocks(q, table, unzigzag, plane, words, samples):
+    """Decode into ``plane``; False (and the plane unfinished) as soon as a dequantized coefficient
+    is beyond LANE_SAFE_COEFFICIENT. ``words`` and ``samples`` are one buffer, (8, nbx) uint64 and
+    (8, 8 nbx) uint8: a block's row of eight samples is one little-endian word (sample c in bits
+    8c..8c+7)."""
     rows, cols = plane.shape
     nby, nbx = q.shape[0], q.shape[1]
-    width = 8 * nbx
-    pass1, pass2 = CONST_BITS - PASS1_BITS, CONST_BITS + PASS1_BITS + 3
-    half1, half2 = 1 << (pass1 - 1), 1 << (pass2 - 1)
-    # One block row at a time, laid out as the plane is: [row in block, 8 * block + column].
-    coef = np.empty((8, width), np.int64)
-    work = np.empty((8, width), np.int64)
-    line = np.empty(width, np.uint8)
+    coef = np.empty((64, nbx), np.int32)  # [natural position, block]
+    work = np.empty((64, nbx), np.int32)  # the first pass's output, same layout
+    b8, b16, b24, b32, b40, b48, b56 = (np.uint64(8), np.uint64(16), np.uint64(24), np.uint64(32), np.uint64(40),
+                                        np.uint64(48), np.uint64(56))
     for by in range(min(nby, (rows + 7) // 8)):
-        for bx in range(nbx):  # dequantize from zigzag into natural positions
-            block = q[by, bx]
-            for k in range(64):
-                coef[k >> 3, 8 * bx + (k & 7)] = np.int64(block[unzigzag[k]]) * table[k]
-        c0, c1, c2, c3, c4, c5, c6, c7 = coef[0], coef[1], coef[2], coef[3], coef[4], coef[5], coef[6], coef[7]
-        w0, w1, w2, w3, w4, w5, w6, w7 = work[0], work[1], work[2], work[3], work[4], work[5], work[6], work[7]
-        for j in range(width):  # down every column of the block row at once (vectorized)
-            o = _inverse_butterfly((c0[j], c1[j], c2[j], c3[j], c4[j], c5[j], c6[j], c7[j]))
-            w0[j] = (o[0] + half1) >> pass1
-            w1[j] = (o[1] + half1) >> pass1
-            w2[j] = (o[2] + half1) >> pass1
-            w3[j] = (o[3] + half1) >> pass1
-            w4[j] = (o[4] + half1) >> pass1
-            w5[j] = (o[5] + half1) >> pass1
-            w6[j] = (o[6] + half1) >> pass1
-            w7[j] = (o[7] + half1) >> pass1
-        for r in range(min(8, rows - 8 * by)):  # then along each row of each block
-            wr = work[r]
+        blocks = q[by]
+        largest = 0
+        for p in range(64):  # dequantize: each natural position across the row's blocks
+            step, z, dst = _i32(table[p]), unzigzag[p], coef[p]
             for bx in range(nbx):
-                b = 8 * bx
-                o = _inverse_butterfly((wr[b], wr[b + 1], wr[b + 2], wr[b + 3], wr[b + 4], wr[b + 5], wr[b + 6], wr[b + 7]))
-                for c in range(8):
-                    v = ((o[c] + half2) >> pass2) + 128
-                    line[b + c] = 0 if v < 0 else (255 if v > 255 else v)
-            plane[8 * by + r, :] = line[:cols]
+                v = _i32(_i32(blocks[bx, z]) * step)
+                dst[bx] = v
+                largest = max(largest, abs(v))
+        if largest > LANE_SAFE_COEFFICIENT:
+            return False
+        for c in range(8):  # down each column of every block
+            y0, y1, y2, y3, y4, y5, y6, y7 = (coef[c], coef[8 + c], coef[16 + c], coef[24 + c], coef[32 + c],
+                                              coef[40 + c], coef[48 + c], coef[56 + c])
+            w0, w1, w2, w3, w4, w5, w6, w7 = (work[c], work[8 + c], work[16 + c], work[24 + c], work[32 + c],
+                                              work[40 + c], work[48 + c], work[56 + c])
+            for bx in range(nbx):
+                o = _inverse_butterfly(y0[bx], y1[bx], y2[bx], y3[bx], y4[bx], y5[bx], y6[bx], y7[bx])
+                w0[bx], w1[bx], w2[bx], w3[bx] = _first_pass(o[0]), _first_pass(o[1]), _first_pass(o[2]), _first_pass(o[3])
+                w4[bx], w5[bx], w6[bx], w7[bx] = _first_pass(o[4]), _first_pass(o[5]), _first_pass(o[6]), _first_pass(o[7])
+        for r in range(8):  # then along each row of every block, eight samples to a word
+            x0, x1, x2, x3, x4, x5, x6, x7 = (work[8 * r], work[8 * r + 1], work[8 * r + 2], work[8 * r + 3],
+                                              work[8 * r + 4], work[8 * r + 5], work[8 * r + 6], work[8 * r + 7])
+            out = words[r]
+            for bx in range(nbx):
+                o = _inverse_butterfly(x0[bx], x1[bx], x2[bx], x3[bx], x4[bx], x5[bx], x6[bx], x7[bx])
+                out[bx] = (_output_sample(o[0]) | (_output_sample(o[1]) << b8) | (_output_sample(o[2]) << b16)
+                           | (_output_sample(o[3]) << b24) | (_output_sample(o[4]) << b32)
+                           | (_output_sample(o[5]) << b40) | (_output_sample(o[6]) << b48)
+                           | (_output_sample(o[7]) << b56))
+        for r in range(min(8, rows - 8 * by)):
+            line, row = plane[8 * by + r], samples[r]
+            for j in range(cols):  # an explicit loop: compiled as a plain copy
+                line[j] = row[j]
+    return True
