@@ -242,4 +242,6 @@ def _fancy(src, v_factor, out):
             s = 3 * sums[j + 1]
             line[2 * j] = (s + sums[j] + even_bias) >> shift
             line[2 * j + 1] = (s + sums[j + 2] + odd_bias) >> shift
-        out[i, :] = line[:width]
+        row_out = out[i]
+        for j in range(width):  # an explicit loop: compiled as a plain copy (a slice assignment is not)
+            row_out[j] = line[j]

@@ -104,29 +104,46 @@ class DamageSpot:
 
 @kernel
 def _smooth_steps(distorted, reference, smooth):
-    """Sums of |step| of the coding error e = distorted - reference (float32) between neighbours that
-    are both smooth: (pairs across a block boundary, pairs inside a block), float64; one pass."""
+    """Sums of |step| of the coding error e = distorted - reference between neighbours that are both
+    smooth: (pairs across a block boundary, pairs inside a block). For 8-bit planes, where every step
+    is a whole number: each row's sums are exact in int32 (at most 510 per pair) and so do not
+    depend on the order of the additions, which lets every loop run in vector lanes.
+
+    Per row, all horizontal pairs are summed, then those straddling a boundary (columns 8k+7 and
+    8k+8) apart; the vertical pairs to the next row all count as across when the row ends a block
+    row."""
     h, w = smooth.shape
-    across = inside = 0.0
+    i32 = np.int32
+    across = inside = 0
+    err, err_below = np.empty(w, np.int32), np.empty(w, np.int32)
+    mask, mask_below = np.empty(w, np.int32), np.empty(w, np.int32)
+    for j in range(w):
+        err[j] = i32(i32(distorted[0, j]) - i32(reference[0, j]))
+        mask[j] = i32(smooth[0, j])
     for i in range(h):
-        below = i + 1 < h
-        for j in range(w):
-            if not smooth[i, j]:
-                continue
-            e = np.float32(distorted[i, j]) - np.float32(reference[i, j])
-            if j + 1 < w and smooth[i, j + 1]:
-                step = abs((np.float32(distorted[i, j + 1]) - np.float32(reference[i, j + 1])) - e)
-                if j % BLOCK == BLOCK - 1:
-                    across += step
-                else:
-                    inside += step
-            if below and smooth[i + 1, j]:
-                step = abs((np.float32(distorted[i + 1, j]) - np.float32(reference[i + 1, j])) - e)
-                if i % BLOCK == BLOCK - 1:
-                    across += step
-                else:
-                    inside += step
-    return across, inside
+        along = i32(0)
+        for j in range(w - 1):
+            along += i32(i32(abs(i32(err[j + 1] - err[j]))) * i32(mask[j] & mask[j + 1]))
+        along_across = i32(0)
+        for j in range(BLOCK - 1, w - 1, BLOCK):
+            along_across += i32(i32(abs(i32(err[j + 1] - err[j]))) * i32(mask[j] & mask[j + 1]))
+        down = i32(0)
+        if i + 1 < h:
+            d, r, m = distorted[i + 1], reference[i + 1], smooth[i + 1]
+            for j in range(w):
+                err_below[j] = i32(i32(d[j]) - i32(r[j]))
+                mask_below[j] = i32(m[j])
+            for j in range(w):
+                down += i32(i32(abs(i32(err_below[j] - err[j]))) * i32(mask[j] & mask_below[j]))
+        across += along_across
+        inside += along - along_across
+        if i % BLOCK == BLOCK - 1:
+            across += down
+        else:
+            inside += down
+        err, err_below = err_below, err
+        mask, mask_below = mask_below, mask
+    return float(across), float(inside)
 
 
 def _boundary_masks(shape: tuple[int, int]) -> tuple[np.ndarray, np.ndarray]:
@@ -262,9 +279,28 @@ class EdgeReference:
         d = np.asarray(distorted)
         if d.shape != self.shape:
             raise ValueError(f"distorted plane has shape {d.shape!r}, the reference {self.shape!r}")
-        b_sum, i_sum = _smooth_steps(d, self.plane, self.smooth)
+        if d.dtype == np.uint8 and self.plane.dtype == np.uint8:
+            b_sum, i_sum = _smooth_steps(d, self.plane, self.smooth)
+        else:
+            b_sum, i_sum = self._smooth_step_sums(d)
         b_n, i_n = self._pair_counts
         return b_sum / b_n - (i_sum / i_n if i_n else 0.0)
+
+    def _smooth_step_sums(self, distorted: np.ndarray) -> tuple[float, float]:
+        """:func:`_smooth_steps` for planes that are not both 8-bit (steps of any real size), in
+        float32 band by band."""
+        h, w = self.shape
+        across_cols = _across_cols(w)
+        across = total = 0.0
+        for r0, r1, pair_cols, pair_rows in self._smooth_pairs():
+            rows = slice(r0, min(r1 + 1, h))
+            err = np.asarray(distorted[rows], np.float32) - np.asarray(self.plane[rows], np.float32)
+            steps_cols = np.abs(np.diff(err[: r1 - r0], axis=1)) * pair_cols
+            steps_rows = np.abs(np.diff(err, axis=0)) * pair_rows
+            across += float(steps_cols[:, across_cols].sum(dtype=np.float64))
+            across += float(steps_rows[_across_rows(r0, r1, h)].sum(dtype=np.float64))
+            total += float(steps_cols.sum(dtype=np.float64)) + float(steps_rows.sum(dtype=np.float64))
+        return across, total - across
 
     def _boundary_pairs(self) -> tuple[np.ndarray, np.ndarray]:
         """Flat indices of the smooth pairs across block boundaries: columns (H, W-1), rows (H-1, W)."""

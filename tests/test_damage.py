@@ -180,3 +180,17 @@ def test_bands_and_gathered_edge_values_equal_the_whole_plane(monkeypatch):
     assert banded.edge_ssim == whole.edge_ssim
     assert banded.blocking == pytest.approx(whole.blocking, abs=1e-12)
     assert whole.blocking > 0.0 and whole.edge_ssim < 1.0  # the comparison is not between neutral values
+
+
+def test_compiled_step_sums_equal_the_float_ones():
+    """The compiled integer sums (8-bit planes) against the float32 numpy sums of the same pairs,
+    on random smooth masks and sizes that leave partial blocks at the right and bottom."""
+    rng = np.random.default_rng(21)
+    for shape in [(37, 53), (64, 64), (300, 17), (9, 260)]:
+        plane = rng.integers(0, 256, shape).astype(np.uint8)
+        ref = damage.EdgeReference(plane)
+        ref.smooth = rng.random(shape) < 0.6
+        distorted = np.clip(plane.astype(int) + rng.integers(-9, 10, shape), 0, 255).astype(np.uint8)
+        compiled = damage._smooth_steps(distorted, ref.plane, ref.smooth)
+        floats = ref._smooth_step_sums(distorted.astype(np.float32))
+        assert compiled == floats and compiled[0] > 0 and compiled[1] > 0
