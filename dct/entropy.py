@@ -191,6 +191,10 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
     extra = np.empty(room, np.int32)
     histogram = np.zeros((2 * groups, 256), np.int64)
     n = _fill_events(blocks, _nonzero_masks(blocks), component, group, previous_dc, event, extra, histogram)
+    return _finished_scan(n, event, extra, groups, histogram)
+
+
+def _finished_scan(n: int, event: np.ndarray, extra: np.ndarray, groups: int, histogram: np.ndarray) -> Scan:
     if n < 0:
         raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
     # Magnitude bits follow from the counts: SSSS is a DC symbol itself, an AC symbol's low nibble.
@@ -200,6 +204,36 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
 
 _DC_SIZE = np.where(np.arange(256) <= 16, np.arange(256), 0).astype(np.int64)
 _AC_SIZE = (np.arange(256) & 15).astype(np.int64)
+
+
+def scan_interleaved(luma: np.ndarray, cb: np.ndarray, cr: np.ndarray, h: int, v: int) -> Scan:
+    """The symbol sequence of a colour image's single interleaved scan (T.81 A.2.3), read straight
+    from each component's blocks.
+
+    Parameters
+    ----------
+    luma : ndarray, shape (nby, nbx, 64), int16 — the luma component's real blocks, zigzag order.
+    cb, cr : ndarray, shape (mcu_rows, mcu_cols, 64), int16 — one chroma block per MCU.
+    h, v : int — luma's sampling factors: its blocks per MCU across and down (Y table pair 0,
+        Cb and Cr pair 1).
+
+    Each MCU is its h x v luma blocks in raster order, then Cb, then Cr. Where the image does not fill
+    the last MCU column or row, libjpeg codes dummy luma blocks whose AC is zero and whose DC
+    repeats a neighbour: the last real block of the row for a block past the right edge, and for one
+    below the bottom the last real row's block at the MCU's right-hand column (or the row's last
+    real block, where that column is past the edge too).
+    """
+    arrays = [np.ascontiguousarray(a, dtype=np.int16) for a in (luma, cb, cr)]
+    mcus = arrays[1].shape[0] * arrays[1].shape[1]
+    if arrays[2].shape != arrays[1].shape or (arrays[1].shape[0] * v < arrays[0].shape[0]
+                                              or arrays[1].shape[1] * h < arrays[0].shape[1]):
+        raise ValueError(f"blocks of shapes {[a.shape for a in arrays]} are not one {h}x{v} MCU grid")
+    room = sum(int(np.count_nonzero(a)) for a in arrays) + 5 * mcus * (h * v + 2)
+    event = np.empty(room, np.uint16)
+    extra = np.empty(room, np.int32)
+    histogram = np.zeros((4, 256), np.int64)
+    n = _fill_interleaved_events(arrays[0], arrays[1], arrays[2], h, v, event, extra, histogram)
+    return _finished_scan(n, event, extra, 2, histogram)
 
 
 @kernel
@@ -230,10 +264,12 @@ for _k in range(64):
 
 @kernel
 def _nonzero_masks(blocks):
-    """Per block, a 64-bit word whose bit k is set where AC coefficient k is non-zero."""
-    masks = np.zeros(blocks.shape[0], np.uint64)
-    for b in range(blocks.shape[0]):
-        block = blocks[b]
+    """Per block of (..., 64), a 64-bit word whose bit k is set where AC coefficient k is non-zero
+    (a pass of its own: the compiler vectorizes it there, not inside the event loop)."""
+    flat = blocks.reshape(-1, 64)
+    masks = np.zeros(flat.shape[0], np.uint64)
+    for b in range(flat.shape[0]):
+        block = flat[b]
         m = np.uint64(0)
         for k in range(1, 64):
             m |= np.uint64(block[k] != 0) << np.uint64(k)
@@ -241,51 +277,89 @@ def _nonzero_masks(blocks):
     return masks
 
 
+@kernel(inline=True)
+def _block_events(block, m, c, dc_table, previous_dc, event, extra, histogram, e):
+    """Append one block's events (T.81 F.1.2.1 and F.1.2.2) from position ``e`` and count them per
+    table and symbol; the new count, or -1 if its DC difference needs more than 16 bits. ``m``, the
+    mask of its AC non-zeros (:func:`_nonzero_masks`), leads straight from one to the next."""
+    dc = np.int64(block[0])
+    diff = dc - previous_dc[c]
+    previous_dc[c] = dc
+    size = _category(abs(diff))
+    if size > 16:
+        return -1
+    event[e] = (dc_table << 8) | size
+    extra[e] = diff if diff >= 0 else diff + (1 << size) - 1  # negative: v - 1 in SSSS bits
+    histogram[dc_table, size] += 1
+    e += 1
+    last = 0
+    ac = histogram[dc_table + 1]
+    ac_event = (dc_table + 1) << 8
+    while m:
+        low = m & (~m + np.uint64(1))  # the lowest set bit
+        m ^= low
+        k = _DEBRUIJN_POSITION[(low * _DEBRUIJN) >> np.uint64(58)]
+        v = np.int64(block[k])
+        run = k - last - 1
+        while run > 15:  # ZRL: sixteen zeros
+            event[e], extra[e] = ac_event | ZRL, 0
+            ac[ZRL] += 1
+            e += 1
+            run -= 16
+        size = _category(abs(v))
+        symbol = (run << 4) | size
+        event[e] = ac_event | symbol
+        extra[e] = v if v >= 0 else v + (1 << size) - 1
+        ac[symbol] += 1
+        e += 1
+        last = k
+    if last != 63:
+        event[e], extra[e] = ac_event | EOB, 0
+        ac[EOB] += 1
+        e += 1
+    return e
+
+
 @kernel
 def _fill_events(blocks, masks, component, group, previous_dc, event, extra, histogram):
-    """Write the scan's events in coding order (T.81 F.1.2.1 and F.1.2.2) and count them per table
-    and symbol; their number, or -1 if a DC difference needs more than 16 bits. ``masks`` (from
-    :func:`_nonzero_masks`) lead straight from one AC non-zero to the next."""
+    """The events of blocks given in coding order with their components; their number, or -1."""
     e = 0
     for b in range(blocks.shape[0]):
         c = component[b]
-        dc_table = 2 * group[c]
-        dc = np.int64(blocks[b, 0])
-        diff = dc - previous_dc[c]
-        previous_dc[c] = dc
-        size = _category(abs(diff))
-        if size > 16:
+        e = _block_events(blocks[b], masks[b], c, 2 * group[c], previous_dc, event, extra, histogram, e)
+        if e < 0:
             return -1
-        event[e] = (dc_table << 8) | size
-        extra[e] = diff if diff >= 0 else diff + (1 << size) - 1  # negative: v - 1 in SSSS bits
-        histogram[dc_table, size] += 1
-        e += 1
-        last = 0
-        m = masks[b]
-        ac = histogram[dc_table + 1]
-        ac_event = (dc_table + 1) << 8
-        while m:
-            low = m & (~m + np.uint64(1))  # the lowest set bit
-            m ^= low
-            k = _DEBRUIJN_POSITION[(low * _DEBRUIJN) >> np.uint64(58)]
-            v = np.int64(blocks[b, k])
-            run = k - last - 1
-            while run > 15:  # ZRL: sixteen zeros
-                event[e], extra[e] = ac_event | ZRL, 0
-                ac[ZRL] += 1
-                e += 1
-                run -= 16
-            size = _category(abs(v))
-            symbol = (run << 4) | size
-            event[e] = ac_event | symbol
-            extra[e] = v if v >= 0 else v + (1 << size) - 1
-            ac[symbol] += 1
-            e += 1
-            last = k
-        if last != 63:
-            event[e], extra[e] = ac_event | EOB, 0
-            ac[EOB] += 1
-            e += 1
+    return e
+
+
+@kernel
+def _fill_interleaved_events(luma, cb, cr, h, v, event, extra, histogram):
+    """The events of an interleaved scan, MCU by MCU (see :func:`scan_interleaved`)."""
+    nby, nbx = luma.shape[0], luma.shape[1]
+    luma_masks = _nonzero_masks(luma).reshape(nby, nbx)
+    cb_masks = _nonzero_masks(cb).reshape(cb.shape[0], cb.shape[1])
+    cr_masks = _nonzero_masks(cr).reshape(cr.shape[0], cr.shape[1])
+    previous_dc = np.zeros(3, np.int64)
+    dummy = np.zeros(64, luma.dtype)
+    e = 0
+    for my in range(cb.shape[0]):
+        for mx in range(cb.shape[1]):
+            for dy in range(v):
+                for dx in range(h):
+                    by, bx = my * v + dy, mx * h + dx
+                    if by < nby and bx < nbx:
+                        e = _block_events(luma[by, bx], luma_masks[by, bx], 0, 0, previous_dc, event, extra, histogram, e)
+                    else:  # a dummy block: no AC, the DC of a neighbour
+                        dummy[0] = luma[by, nbx - 1, 0] if by < nby else luma[nby - 1, min(mx * h + h - 1, nbx - 1), 0]
+                        e = _block_events(dummy, np.uint64(0), 0, 0, previous_dc, event, extra, histogram, e)
+                    if e < 0:
+                        return -1
+            e = _block_events(cb[my, mx], cb_masks[my, mx], 1, 2, previous_dc, event, extra, histogram, e)
+            if e < 0:
+                return -1
+            e = _block_events(cr[my, mx], cr_masks[my, mx], 2, 2, previous_dc, event, extra, histogram, e)
+            if e < 0:
+                return -1
     return e
 
 

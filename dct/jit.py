@@ -25,9 +25,16 @@ import numba
 _OPTIONS = dict(nogil=True, error_model="numpy")
 
 
-def kernel(func):
-    """Compile ``func`` with the engine's options, cached on disk where a cache can be kept."""
+def kernel(func=None, *, inline: bool = False):
+    """Compile ``func`` with the engine's options, cached on disk where a cache can be kept.
+
+    ``@kernel(inline=True)`` marks a helper that other kernels call once per block or pixel: numba
+    then copies its body into each caller, where a call per block would cost more than its work.
+    """
+    if func is None:
+        return lambda f: kernel(f, inline=inline)
+    options = dict(_OPTIONS, inline="always") if inline else _OPTIONS
     try:
-        return numba.njit(cache=True, **_OPTIONS)(func)
+        return numba.njit(cache=True, **options)(func)
     except RuntimeError:  # no writable cache location for its source: compiled anew in each process
-        return numba.njit(**_OPTIONS)(func)
+        return numba.njit(**options)(func)

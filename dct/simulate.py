@@ -134,60 +134,14 @@ def _quantize(coefficients, fq, c, r, out):
             out[b, k] = q if t > 0 else (-q if t < 0 else 0)
 
 
-def _coding_order(qz: np.ndarray, h: int, v: int) -> np.ndarray:
-    """Arrange one component's quantized blocks in interleaved-scan coding order.
-
-    Parameters
-    ----------
-    qz : ndarray, shape (nby, nbx, 64), int32 — the component's real blocks.
-    h, v : int — the component's sampling factors (its blocks per MCU across and down).
-
-    Returns
-    -------
-    ndarray, shape (N, 64): blocks MCU by MCU, and within an MCU in raster order. Where the image does
-    not fill the last MCU, libjpeg adds dummy blocks whose AC is zero and whose DC repeats a neighbour
-    (the last real block of the row to the right; the block above at the MCU's right for a bottom row).
-    """
-    nby, nbx, _ = qz.shape
-    if h == 1 and v == 1:
-        return qz.reshape(-1, 64)
-    nmy, nmx = _ceil_div(nby, v), _ceil_div(nbx, h)
-    full = np.zeros((nmy * v, nmx * h, 64), dtype=qz.dtype)
-    full[:nby, :nbx] = qz
-    if nmx * h > nbx:
-        full[:nby, nbx:, 0] = qz[:, -1:, 0]
-    if nmy * v > nby:
-        full[nby:, :, 0] = np.repeat(full[nby - 1, h - 1 :: h, 0], h)[None, :]
-    return full.reshape(nmy, v, nmx, h, 64).transpose(0, 2, 1, 3, 4).reshape(-1, 64)
-
-
 def _scan(luma_q: np.ndarray, chroma_q: tuple[np.ndarray, np.ndarray] | None, subsampling: str) -> entropy.Scan:
-    """The file's single scan: blocks interleaved MCU by MCU (Y blocks, then Cb, then Cr), zigzag.
-
-    Assembled band of MCU rows by band, so the interleaved copy never holds the whole image."""
-    if chroma_q is None:  # one component: a non-interleaved scan of the real blocks in raster order
+    """The file's single scan: blocks interleaved MCU by MCU (Y blocks, then Cb, then Cr), zigzag;
+    one component's real blocks in raster order for grayscale."""
+    if chroma_q is None:
         y = luma_q.reshape(-1, 64)
         return entropy.scan_symbols(y, np.zeros(y.shape[0], np.int8), (0,))
     h, v = SAMPLING_FACTORS[subsampling]
-    per_mcu = h * v + 2
-    mcu_rows, mcu_cols = chroma_q[0].shape[:2]
-    band = max(1, _SCAN_BAND_BLOCKS // (mcu_cols * per_mcu))
-
-    def pieces():
-        for my in range(0, mcu_rows, band):
-            y = _coding_order(luma_q[my * v : (my + band) * v], h, v)
-            mcus = y.shape[0] // (h * v)
-            blocks = np.empty((mcus, per_mcu, 64), dtype=luma_q.dtype)
-            blocks[:, : h * v] = y.reshape(mcus, h * v, 64)
-            blocks[:, h * v] = chroma_q[0][my : my + band].reshape(-1, 64)
-            blocks[:, h * v + 1] = chroma_q[1][my : my + band].reshape(-1, 64)
-            component = np.tile(np.array([0] * (h * v) + [1, 2], np.int8), mcus)
-            yield blocks.reshape(-1, 64), component
-
-    return entropy.scan_chunks(pieces(), (0, 1, 1))
-
-
-_SCAN_BAND_BLOCKS = 1 << 15  # blocks per band of MCU rows
+    return entropy.scan_interleaved(luma_q, chroma_q[0], chroma_q[1], h, v)
 
 
 def _blocks(plane: np.ndarray) -> np.ndarray:

@@ -247,3 +247,43 @@ def test_scan_in_pieces_equals_one_pass():
     tables = [entropy.canonical_codes(*entropy.optimal_table(whole.counts(t)), 16 if t % 2 == 0 else 256)
               for t in range(4)]
     assert entropy.entropy_coded_bytes(parts, tables) == entropy.entropy_coded_bytes(whole, tables)
+
+
+def test_interleaved_scan_equals_the_blocks_in_mcu_order():
+    """The scan read straight from the components against the generic scan of the same blocks laid
+    out MCU by MCU in plain Python, dummy blocks included (T.81 A.2.3; libjpeg's dummy DCs: the
+    row's last real block past the right edge, the last real row's block at the MCU's right-hand
+    column below the bottom), for every sampling layout and sizes that leave partial MCUs."""
+    import numpy as np
+
+    rng = np.random.default_rng(31)
+    for (h, v), (nby, nbx) in [((1, 1), (3, 5)), ((2, 1), (3, 5)), ((2, 2), (5, 7)), ((2, 2), (4, 6)), ((2, 2), (1, 1))]:
+        luma = np.zeros((nby, nbx, 64), np.int16)
+        luma[..., :10] = rng.integers(-20, 21, (nby, nbx, 10))
+        luma[..., 0] = rng.integers(-500, 500, (nby, nbx))
+        rows, cols = -(-nby // v), -(-nbx // h)
+        cb, cr = (rng.integers(-5, 6, (rows, cols, 64)).astype(np.int16) * (rng.random((rows, cols, 64)) < 0.2)
+                  for _ in range(2))
+        blocks, component = [], []
+        for my in range(rows):
+            for mx in range(cols):
+                for dy in range(v):
+                    for dx in range(h):
+                        by, bx = my * v + dy, mx * h + dx
+                        block = np.zeros(64, np.int16)
+                        if by < nby and bx < nbx:
+                            block = luma[by, bx]
+                        elif by < nby:
+                            block[0] = luma[by, nbx - 1, 0]
+                        else:
+                            block[0] = luma[nby - 1, min(mx * h + h - 1, nbx - 1), 0]
+                        blocks.append(block)
+                        component.append(0)
+                blocks += [cb[my, mx], cr[my, mx]]
+                component += [1, 2]
+        want = entropy.scan_symbols(np.array(blocks), np.array(component, np.int8), (0, 1, 1))
+        got = entropy.scan_interleaved(luma, cb, cr, h, v)
+        np.testing.assert_array_equal(got.event, want.event)
+        np.testing.assert_array_equal(got.extra, want.extra)
+        np.testing.assert_array_equal(got.histogram, want.histogram)
+        np.testing.assert_array_equal(got.extra_bits, want.extra_bits)

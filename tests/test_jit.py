@@ -13,3 +13,13 @@ def test_a_kernel_runs_where_no_cache_can_be_kept():
          namespace)
     compiled = kernel(namespace["total"])
     assert compiled(np.arange(10)) == 45
+
+
+def test_an_inlined_helper_gives_the_same_results_in_its_caller():
+    namespace = {"np": np, "kernel": kernel}
+    source = ("@kernel(inline=True)\ndef step(v):\n    return 3 * v + 1\n\n"
+              "@kernel\ndef apply(a):\n    out = np.empty_like(a)\n    for i in range(a.size):\n"
+              "        out[i] = step(a[i])\n    return out\n")
+    exec(compile(source, "<generated>", "exec"), namespace)
+    np.testing.assert_array_equal(namespace["apply"](np.arange(5)), 3 * np.arange(5) + 1)
+    assert namespace["step"](2) == 7
