@@ -114,8 +114,10 @@ def decoded_luma(y: np.ndarray, cb: np.ndarray, cr: np.ndarray) -> np.ndarray:
     """``luma(ycbcr_to_rgb(y, cb, cr))`` (what a viewer's luma of the decoded RGB is) in one
     compiled pass, without making the RGB image; (H, W) uint8.
 
-    The decoder's tables are computed in place (the same fixed-point products and shifts, in
-    int32: ``FIX(1.772) * 127 < 2**24``), which lets the compiler vectorize the loop.
+    The decoder's fixed-point products and shifts are computed in float32, which holds each of them
+    exactly (every sum stays below 2**24: the largest, the luma weights times 255 plus the rounding
+    half, is 16,744,448) and lets the compiler fill 8-wide vector lanes; a shift right is a floor of
+    the division by 2**16, also exact. tests/test_color.py checks every (Y, Cb, Cr) combination.
     """
     y, cb, cr = (np.ascontiguousarray(p, dtype=np.uint8) for p in (y, cb, cr))
     if not (y.shape == cb.shape == cr.shape and y.ndim == 2):
@@ -130,15 +132,17 @@ _R_CR, _B_CB, _G_CB, _G_CR = _fix(1.40200), _fix(1.77200), -_fix(0.34414), -_fix
 
 @kernel
 def _decoded_luma(y, cb, cr, out):
-    wr, wg, wb = np.int32(_Y_WEIGHTS[0]), np.int32(_Y_WEIGHTS[1]), np.int32(_Y_WEIGHTS[2])
-    half = np.int32(ONE_HALF)
+    f32 = np.float32
+    r_cr, b_cb, g_cb, g_cr = f32(_R_CR), f32(_B_CB), f32(_G_CB), f32(_G_CR)
+    wr, wg, wb = f32(_Y_WEIGHTS[0]), f32(_Y_WEIGHTS[1]), f32(_Y_WEIGHTS[2])
+    half, unit, low, high = f32(ONE_HALF), f32(1.0 / (1 << SCALEBITS)), f32(0.0), f32(255.0)
     for k in range(y.size):
-        v = np.int32(y[k])
-        u, w = np.int32(cb[k]) - 128, np.int32(cr[k]) - 128
-        r = min(max(v + ((_R_CR * w + half) >> SCALEBITS), 0), 255)  # CR_TO_R
-        g = min(max(v + ((_G_CB * u + half + _G_CR * w) >> SCALEBITS), 0), 255)
-        b = min(max(v + ((_B_CB * u + half) >> SCALEBITS), 0), 255)  # CB_TO_B
-        out[k] = (wr * r + wg * g + wb * b + half) >> SCALEBITS
+        v = f32(y[k])
+        u, w = f32(cb[k]) - f32(128.0), f32(cr[k]) - f32(128.0)
+        r = min(max(v + np.floor((r_cr * w + half) * unit), low), high)  # CR_TO_R
+        g = min(max(v + np.floor((g_cb * u + half + g_cr * w) * unit), low), high)
+        b = min(max(v + np.floor((b_cb * u + half) * unit), low), high)  # CB_TO_B
+        out[k] = np.uint8(np.floor((wr * r + wg * g + wb * b + half) * unit))
 
 
 def pad_edges(plane: np.ndarray, height: int, width: int) -> np.ndarray:

@@ -84,3 +84,12 @@ def test_upsampling_equals_a_per_sample_loop():
     plane = np.ascontiguousarray(rgb_to_ycbcr(data.coffee())[1][:61:2, :97:2])  # 31 x 49
     for v, height in ((2, 61), (1, 31)):
         np.testing.assert_array_equal(upsample(plane, 2, v, height, 97), _fancy_oracle(plane, v, height, 97))
+
+def test_decoded_luma_equals_the_luma_of_the_decoded_rgb_for_every_sample():
+    """The compiled, float32 decoded luma against its definition (libjpeg's fixed-point YCbCr -> RGB,
+    then the T.871 luma of that RGB, both in numpy integers) for all 2**24 (Y, Cb, Cr) triples."""
+    from dct.color import decoded_luma, luma, ycbcr_to_rgb
+
+    every = np.arange(1 << 24, dtype=np.uint32).reshape(4096, 4096)
+    y, cb, cr = ((every >> 16).astype(np.uint8), ((every >> 8) & 255).astype(np.uint8), (every & 255).astype(np.uint8))
+    np.testing.assert_array_equal(decoded_luma(y, cb, cr), luma(ycbcr_to_rgb(y, cb, cr)))
