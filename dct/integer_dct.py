@@ -275,45 +275,91 @@ def _decode_blocks(q, table, unzigzag, plane, words, samples):
     """Decode into ``plane``; False (and the plane unfinished) as soon as a dequantized coefficient
     is beyond LANE_SAFE_COEFFICIENT. ``words`` and ``samples`` are one buffer, (8, nbx) uint64 and
     (8, 8 nbx) uint8: a block's row of eight samples is one little-endian word (sample c in bits
-    8c..8c+7)."""
+    8c..8c+7).
+
+    Positions that are zero in every block of a block row (most of them in chroma) are not read: their
+    row of coefficients is set to zero. Where a whole column of positions is zero, the first pass
+    leaves it zero; where the last four rows (or columns) are zero throughout, the passes run the
+    butterfly with those inputs as literal zeros, which the compiler folds away. Zeros give zeros
+    exactly, so every sample is the one the full passes give."""
     rows, cols = plane.shape
     nby, nbx = q.shape[0], q.shape[1]
     coef = np.empty((64, nbx), np.int32)  # [natural position, block]
     work = np.empty((64, nbx), np.int32)  # the first pass's output, same layout
+    used = np.zeros(64, np.bool_)  # natural positions non-zero somewhere in the block row
+    zero = _i32(0)
     b8, b16, b24, b32, b40, b48, b56 = (np.uint64(8), np.uint64(16), np.uint64(24), np.uint64(32), np.uint64(40),
                                         np.uint64(48), np.uint64(56))
     for by in range(min(nby, (rows + 7) // 8)):
         blocks = q[by]
+        any_zigzag = np.zeros(64, np.int16)
+        for bx in range(nbx):
+            block = blocks[bx]
+            for z in range(64):
+                any_zigzag[z] |= block[z]
         largest = 0
         for p in range(64):  # dequantize: each natural position across the row's blocks
-            step, z, dst = _i32(table[p]), unzigzag[p], coef[p]
+            z, dst = unzigzag[p], coef[p]
+            used[p] = any_zigzag[z] != 0
+            if not used[p]:
+                for bx in range(nbx):
+                    dst[bx] = zero
+                continue
+            step = _i32(table[p])
             for bx in range(nbx):
                 v = _i32(_i32(blocks[bx, z]) * step)
                 dst[bx] = v
                 largest = max(largest, abs(v))
         if largest > LANE_SAFE_COEFFICIENT:
             return False
+        low_rows = True  # rows 4..7 of every block are zero
+        low_cols = True  # columns 4..7 of every block are zero
+        for p in range(64):
+            if used[p]:
+                low_rows = low_rows and p < 32
+                low_cols = low_cols and (p & 7) < 4
         for c in range(8):  # down each column of every block
-            y0, y1, y2, y3, y4, y5, y6, y7 = (coef[c], coef[8 + c], coef[16 + c], coef[24 + c], coef[32 + c],
-                                              coef[40 + c], coef[48 + c], coef[56 + c])
             w0, w1, w2, w3, w4, w5, w6, w7 = (work[c], work[8 + c], work[16 + c], work[24 + c], work[32 + c],
                                               work[40 + c], work[48 + c], work[56 + c])
-            for bx in range(nbx):
-                o = _inverse_butterfly(y0[bx], y1[bx], y2[bx], y3[bx], y4[bx], y5[bx], y6[bx], y7[bx])
-                w0[bx], w1[bx], w2[bx], w3[bx] = _first_pass(o[0]), _first_pass(o[1]), _first_pass(o[2]), _first_pass(o[3])
-                w4[bx], w5[bx], w6[bx], w7[bx] = _first_pass(o[4]), _first_pass(o[5]), _first_pass(o[6]), _first_pass(o[7])
+            if not (used[c] or used[8 + c] or used[16 + c] or used[24 + c] or used[32 + c] or used[40 + c]
+                    or used[48 + c] or used[56 + c]):
+                for bx in range(nbx):  # an all-zero column stays zero
+                    w0[bx] = w1[bx] = w2[bx] = w3[bx] = w4[bx] = w5[bx] = w6[bx] = w7[bx] = zero
+                continue
+            y0, y1, y2, y3, y4, y5, y6, y7 = (coef[c], coef[8 + c], coef[16 + c], coef[24 + c], coef[32 + c],
+                                              coef[40 + c], coef[48 + c], coef[56 + c])
+            if low_rows:
+                for bx in range(nbx):
+                    o = _inverse_butterfly(y0[bx], y1[bx], y2[bx], y3[bx], zero, zero, zero, zero)
+                    w0[bx], w1[bx], w2[bx], w3[bx] = _first_pass(o[0]), _first_pass(o[1]), _first_pass(o[2]), _first_pass(o[3])
+                    w4[bx], w5[bx], w6[bx], w7[bx] = _first_pass(o[4]), _first_pass(o[5]), _first_pass(o[6]), _first_pass(o[7])
+            else:
+                for bx in range(nbx):
+                    o = _inverse_butterfly(y0[bx], y1[bx], y2[bx], y3[bx], y4[bx], y5[bx], y6[bx], y7[bx])
+                    w0[bx], w1[bx], w2[bx], w3[bx] = _first_pass(o[0]), _first_pass(o[1]), _first_pass(o[2]), _first_pass(o[3])
+                    w4[bx], w5[bx], w6[bx], w7[bx] = _first_pass(o[4]), _first_pass(o[5]), _first_pass(o[6]), _first_pass(o[7])
         for r in range(8):  # then along each row of every block, eight samples to a word
             x0, x1, x2, x3, x4, x5, x6, x7 = (work[8 * r], work[8 * r + 1], work[8 * r + 2], work[8 * r + 3],
                                               work[8 * r + 4], work[8 * r + 5], work[8 * r + 6], work[8 * r + 7])
             out = words[r]
-            for bx in range(nbx):
-                o = _inverse_butterfly(x0[bx], x1[bx], x2[bx], x3[bx], x4[bx], x5[bx], x6[bx], x7[bx])
-                out[bx] = (_output_sample(o[0]) | (_output_sample(o[1]) << b8) | (_output_sample(o[2]) << b16)
-                           | (_output_sample(o[3]) << b24) | (_output_sample(o[4]) << b32)
-                           | (_output_sample(o[5]) << b40) | (_output_sample(o[6]) << b48)
-                           | (_output_sample(o[7]) << b56))
+            if low_cols:
+                for bx in range(nbx):
+                    o = _inverse_butterfly(x0[bx], x1[bx], x2[bx], x3[bx], zero, zero, zero, zero)
+                    out[bx] = _packed_samples(o, b8, b16, b24, b32, b40, b48, b56)
+            else:
+                for bx in range(nbx):
+                    o = _inverse_butterfly(x0[bx], x1[bx], x2[bx], x3[bx], x4[bx], x5[bx], x6[bx], x7[bx])
+                    out[bx] = _packed_samples(o, b8, b16, b24, b32, b40, b48, b56)
         for r in range(min(8, rows - 8 * by)):
             line, row = plane[8 * by + r], samples[r]
             for j in range(cols):  # an explicit loop: compiled as a plain copy
                 line[j] = row[j]
     return True
+
+
+@kernel(inline=True)
+def _packed_samples(o, b8, b16, b24, b32, b40, b48, b56):
+    """A row's eight second-pass outputs as samples packed into one little-endian word."""
+    return (_output_sample(o[0]) | (_output_sample(o[1]) << b8) | (_output_sample(o[2]) << b16)
+            | (_output_sample(o[3]) << b24) | (_output_sample(o[4]) << b32) | (_output_sample(o[5]) << b40)
+            | (_output_sample(o[6]) << b48) | (_output_sample(o[7]) << b56))

@@ -71,7 +71,7 @@ def test_compiled_plane_decoder_equals_the_matrix_form():
     from dct.tables import UNZIGZAG, ZIGZAG, quant_tables
 
     rng = np.random.default_rng(12)
-    nby, nbx = 8, 9
+    nby, nbx = 12, 9
     table = quant_tables(35)[0]
     limit = LANE_SAFE_COEFFICIENT // table  # per position: |q * Q| stays within the limit
     natural = rng.integers(-3, 4, (nby, nbx, 8, 8))
@@ -81,8 +81,14 @@ def test_compiled_plane_decoder_equals_the_matrix_form():
     natural[3, :, 0, 0] = limit[0, 0]  # clamps high
     natural[4, :, 0, 0] = -limit[0, 0]  # clamps low
     signs = rng.choice([-1, 1], (3, nbx, 8, 8))
-    natural[5:] = signs * limit  # every coefficient at its limit, random signs
+    natural[5:8] = signs * limit  # every coefficient at its limit, random signs
     natural[5, 0] = limit * np.sign(np.cos(np.arange(8) * np.pi * 3 / 16))[:, None]  # aligned with a basis
+    # The shortcuts for zeros throughout a block row: the last four rows, the last four columns,
+    # both, and all but one column.
+    natural[8, :, 4:, :] = 0
+    natural[9, :, :, 4:] = 0
+    natural[10, :, 4:, :] = natural[10, :, :, 4:] = 0
+    natural[11, :, :, [0, 1, 2, 4, 5, 6, 7]] = 0
     quantized = natural.reshape(nby, nbx, 64)[..., ZIGZAG].astype(np.int16)
     rows, cols = 8 * nby - 3, 8 * nbx - 5
     plane = inverse_dct_islow_plane(quantized, table, rows, cols)
