@@ -226,7 +226,6 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
     span = 2 * r + 1
     ring = np.empty((span, 3, w), np.float32)  # moments of input rows, by row modulo span
     column = np.empty((3, w + 2 * r), np.float32)  # filtered down the columns, mirrored at both ends
-    along = np.empty((3, w), np.float32)
     shift, two = np.float32(128.0), np.float32(2.0)
     c1, c2 = np.float32(C1), np.float32(C2)
     squared = interior = 0.0
@@ -265,21 +264,22 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
             for m in range(5):  # mirror the ends for the pass along the row
                 col[4 - m] = col[5 + m]
                 col[5 + w + m] = col[4 + w - m]
-            l0, l1, l2, l3, l4 = col[0:w], col[1 : 1 + w], col[2 : 2 + w], col[3 : 3 + w], col[4 : 4 + w]
-            r4, r3, r2, r1, r0 = col[6 : 6 + w], col[7 : 7 + w], col[8 : 8 + w], col[9 : 9 + w], col[10 : 10 + w]
-            res = along[c]
-            for j in range(w):  # along the row
-                res[j] = (t5 * middle[j] + t0 * (l0[j] + r0[j]) + t1 * (l1[j] + r1[j]) + t2 * (l2[j] + r2[j])
-                          + t3 * (l3[j] + r3[j]) + t4 * (l4[j] + r4[j]))
+        # Along the row, the three moments at once, and eq. (13) on them straight away.
+        a0, a1, a2 = column[0], column[1], column[2]
         mean_x, vx, o = ux[n], var_x[n], out[n if out.shape[0] > 1 else 0]
-        mean_e, e2, xe = along[0], along[1], along[2]
         for j in range(w):
-            mx, me = mean_x[j], mean_e[j]
-            cov_xe = xe[j] - (mx - shift) * me  # sigma_xe
-            var_e = e2[j] - me * me  # sigma_e^2
-            n1 = (mx + me) * mx * two + c1
+            mean_e = (t5 * a0[j + 5] + t0 * (a0[j] + a0[j + 10]) + t1 * (a0[j + 1] + a0[j + 9])
+                      + t2 * (a0[j + 2] + a0[j + 8]) + t3 * (a0[j + 3] + a0[j + 7]) + t4 * (a0[j + 4] + a0[j + 6]))
+            e2 = (t5 * a1[j + 5] + t0 * (a1[j] + a1[j + 10]) + t1 * (a1[j + 1] + a1[j + 9])
+                  + t2 * (a1[j + 2] + a1[j + 8]) + t3 * (a1[j + 3] + a1[j + 7]) + t4 * (a1[j + 4] + a1[j + 6]))
+            xe = (t5 * a2[j + 5] + t0 * (a2[j] + a2[j + 10]) + t1 * (a2[j + 1] + a2[j + 9])
+                  + t2 * (a2[j + 2] + a2[j + 8]) + t3 * (a2[j + 3] + a2[j + 7]) + t4 * (a2[j + 4] + a2[j + 6]))
+            mx = mean_x[j]
+            cov_xe = xe - (mx - shift) * mean_e  # sigma_xe
+            var_e = e2 - mean_e * mean_e  # sigma_e^2
+            n1 = (mx + mean_e) * mx * two + c1
             n2 = (vx[j] + cov_xe) * two + c2
-            o[j] = (n1 * n2) / ((me * me + n1) * (var_e + n2))
+            o[j] = (n1 * n2) / ((mean_e * mean_e + n1) * (var_e + n2))
         if r <= i < h - r:
             interior += _row_sum(o[r : w - r])
     return squared, interior
