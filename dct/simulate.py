@@ -126,12 +126,18 @@ def quantize(coefficients: np.ndarray, table: np.ndarray) -> np.ndarray:
 
 @kernel
 def _quantize(coefficients, fq, c, r, out):
-    """((|t| + c) * fq) >> r with t's sign, in int32 as libjpeg computes it."""
+    """((|t| + c) * fq) >> r with t's sign restored, in int32 as libjpeg computes it.
+
+    Every step wraps to 32 bits and the shift is masked to below 32 (r is at most 26, so the mask
+    changes nothing): that lets the compiler keep the loop in 32-bit vector lanes. The sign is taken
+    off and put back with the two's-complement identity |t| = (t ^ s) - s for s = t >> 31."""
+    i32 = np.int32
     for b in range(coefficients.shape[0]):
         for k in range(64):
-            t = np.int32(coefficients[b, k])
-            q = ((abs(t) + c[k]) * fq[k]) >> r[k]
-            out[b, k] = q if t > 0 else (-q if t < 0 else 0)
+            t = i32(coefficients[b, k])
+            sign = i32(t >> 31)  # -1 for negative t, else 0
+            q = i32(i32(i32(i32(i32(t ^ sign) - sign) + c[k]) * fq[k]) >> i32(r[k] & 31))
+            out[b, k] = i32(q ^ sign) - sign
 
 
 def _scan(luma_q: np.ndarray, chroma_q: tuple[np.ndarray, np.ndarray] | None, subsampling: str) -> entropy.Scan:
