@@ -227,25 +227,27 @@ def _fancy(src, v_factor, out):
     Columns are replicated at both ends; the output is cropped to its shape."""
     height, width = out.shape
     h, w = src.shape
+    i32 = np.int32  # every step wraps to 32 bits and the shift is masked below 32: 32-bit vector lanes
     sums = np.empty(w + 2, np.int32)  # with one replicated column at each end
     line = np.empty(2 * w, np.uint8)
     even_bias, odd_bias, shift = (8, 7, 4) if v_factor == 2 else (1, 2, 2)
+    shift = i32(shift & 31)
     for i in range(height):
         if v_factor == 2:
             a = i >> 1
             b = max(a - 1, 0) if i % 2 == 0 else min(a + 1, h - 1)
             near, far = src[a], src[b]
             for j in range(w):
-                sums[j + 1] = 3 * np.int32(near[j]) + np.int32(far[j])
+                sums[j + 1] = i32(i32(3 * i32(near[j])) + i32(far[j]))
         else:
             row = src[i]
             for j in range(w):
-                sums[j + 1] = np.int32(row[j])
+                sums[j + 1] = i32(row[j])
         sums[0], sums[w + 1] = sums[1], sums[w]
         for j in range(w):
-            s = 3 * sums[j + 1]
-            line[2 * j] = (s + sums[j] + even_bias) >> shift
-            line[2 * j + 1] = (s + sums[j + 2] + odd_bias) >> shift
+            s = i32(3 * sums[j + 1])
+            line[2 * j] = i32(i32(i32(s + sums[j]) + even_bias) >> shift)
+            line[2 * j + 1] = i32(i32(i32(s + sums[j + 2]) + odd_bias) >> shift)
         row_out = out[i]
         for j in range(width):  # an explicit loop: compiled as a plain copy (a slice assignment is not)
             row_out[j] = line[j]
