@@ -223,66 +223,88 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
     """
     h, w = x.shape
     r = RADIUS  # 5: the passes below write the 11 taps out
-    span = 2 * r + 1
+    span = 2 * r + 2  # the window's rows and one more: output rows are filtered down two at a time
     ring = np.empty((span, 3, w), np.float32)  # moments of input rows, by row modulo span
-    column = np.empty((3, w + 2 * r), np.float32)  # filtered down the columns, mirrored at both ends
-    shift, two = np.float32(128.0), np.float32(2.0)
-    c1, c2 = np.float32(C1), np.float32(C2)
+    column = np.empty((2, 3, w + 2 * r), np.float32)  # two rows filtered down the columns, mirrored at both ends
+    shift = np.float32(128.0)
+    t0, t1, t2, t3, t4, t5 = taps[0], taps[1], taps[2], taps[3], taps[4], taps[5]
     squared = interior = 0.0
-    for n in range(-2 * r, stop - start):  # output row start + n, once its window's last row is in
-        row = start + n + r  # the input row that arrives now (mirrored below)
-        src = -1 - row if row < 0 else (2 * h - 1 - row if row >= h else row)
-        slot = (row + span) % span
-        err, err2, cross = ring[slot, 0], ring[slot, 1], ring[slot, 2]
-        xr, yr = x[src], y[src]
-        for j in range(w):
-            xv = np.float32(xr[j])
-            d = np.float32(yr[j]) - xv
-            err[j] = d
-            err2[j] = d * d
-            cross[j] = (xv - shift) * d
-        if start <= row < stop:
-            squared += _row_sum(err2)
-        if n < 0:
-            continue
-        i = start + n  # every row of its window is in the ring now
-        # The window's 11 taps written out (radius 5, fixed by the paper's settings), so that each
-        # pass is one loop over the row, indexed only by its own counter: the form that vectorizes.
-        t0, t1, t2, t3, t4, t5 = taps[0], taps[1], taps[2], taps[3], taps[4], taps[5]
+    count = stop - start
+    arrived = start - r  # the next input row to bring into the ring (mirrored past the edges)
+    n = 0
+    while n < count:  # output rows start + n and, but for a last odd one, start + n + 1
+        pair = n + 1 < count
+        while arrived <= start + n + r + (1 if pair else 0):
+            src = -1 - arrived if arrived < 0 else (2 * h - 1 - arrived if arrived >= h else arrived)
+            slot = (arrived + span) % span
+            err, err2, cross = ring[slot, 0], ring[slot, 1], ring[slot, 2]
+            xr, yr = x[src], y[src]
+            for j in range(w):
+                xv = np.float32(xr[j])
+                d = np.float32(yr[j]) - xv
+                err[j] = d
+                err2[j] = d * d
+                cross[j] = (xv - shift) * d
+            if start <= arrived < stop:
+                squared += _row_sum(err2)
+            arrived += 1
+        i = start + n  # every row of its window (and of the next row's, for a pair) is in the ring
         for c in range(3):
+            # The window's 11 taps written out (radius 5, fixed by the paper's settings), so that
+            # each pass is one loop over the row, indexed only by its own counter: the form that
+            # vectorizes. Two output rows share ten of their input rows, loaded once for both.
             u0, u1, u2, u3, u4 = (ring[(i - 5 + span) % span, c], ring[(i - 4 + span) % span, c],
                                   ring[(i - 3 + span) % span, c], ring[(i - 2 + span) % span, c],
                                   ring[(i - 1 + span) % span, c])
             mid = ring[(i + span) % span, c]
             d4, d3, d2, d1, d0 = (ring[(i + 1) % span, c], ring[(i + 2) % span, c], ring[(i + 3) % span, c],
                                   ring[(i + 4) % span, c], ring[(i + 5) % span, c])
-            col = column[c]
-            middle = col[5 : 5 + w]
-            for j in range(w):  # down the columns
-                middle[j] = (t5 * mid[j] + t0 * (u0[j] + d0[j]) + t1 * (u1[j] + d1[j]) + t2 * (u2[j] + d2[j])
-                             + t3 * (u3[j] + d3[j]) + t4 * (u4[j] + d4[j]))
-            for m in range(5):  # mirror the ends for the pass along the row
-                col[4 - m] = col[5 + m]
-                col[5 + w + m] = col[4 + w - m]
-        # Along the row, the three moments at once, and eq. (13) on them straight away.
-        a0, a1, a2 = column[0], column[1], column[2]
-        mean_x, vx, o = ux[n], var_x[n], out[n if out.shape[0] > 1 else 0]
-        for j in range(w):
-            mean_e = (t5 * a0[j + 5] + t0 * (a0[j] + a0[j + 10]) + t1 * (a0[j + 1] + a0[j + 9])
-                      + t2 * (a0[j + 2] + a0[j + 8]) + t3 * (a0[j + 3] + a0[j + 7]) + t4 * (a0[j + 4] + a0[j + 6]))
-            e2 = (t5 * a1[j + 5] + t0 * (a1[j] + a1[j + 10]) + t1 * (a1[j + 1] + a1[j + 9])
-                  + t2 * (a1[j + 2] + a1[j + 8]) + t3 * (a1[j + 3] + a1[j + 7]) + t4 * (a1[j + 4] + a1[j + 6]))
-            xe = (t5 * a2[j + 5] + t0 * (a2[j] + a2[j + 10]) + t1 * (a2[j + 1] + a2[j + 9])
-                  + t2 * (a2[j + 2] + a2[j + 8]) + t3 * (a2[j + 3] + a2[j + 7]) + t4 * (a2[j + 4] + a2[j + 6]))
-            mx = mean_x[j]
-            cov_xe = xe - (mx - shift) * mean_e  # sigma_xe
-            var_e = e2 - mean_e * mean_e  # sigma_e^2
-            n1 = (mx + mean_e) * mx * two + c1
-            n2 = (vx[j] + cov_xe) * two + c2
-            o[j] = (n1 * n2) / ((mean_e * mean_e + n1) * (var_e + n2))
-        if r <= i < h - r:
-            interior += _row_sum(o[r : w - r])
+            below = ring[(i + 6) % span, c]
+            first, second = column[0, c, 5 : 5 + w], column[1, c, 5 : 5 + w]
+            if pair:
+                for j in range(w):  # down the columns, rows i and i + 1
+                    first[j] = (t5 * mid[j] + t0 * (u0[j] + d0[j]) + t1 * (u1[j] + d1[j]) + t2 * (u2[j] + d2[j])
+                                + t3 * (u3[j] + d3[j]) + t4 * (u4[j] + d4[j]))
+                    second[j] = (t5 * d4[j] + t0 * (u1[j] + below[j]) + t1 * (u2[j] + d0[j]) + t2 * (u3[j] + d1[j])
+                                 + t3 * (u4[j] + d2[j]) + t4 * (mid[j] + d3[j]))
+            else:
+                for j in range(w):
+                    first[j] = (t5 * mid[j] + t0 * (u0[j] + d0[j]) + t1 * (u1[j] + d1[j]) + t2 * (u2[j] + d2[j])
+                                + t3 * (u3[j] + d3[j]) + t4 * (u4[j] + d4[j]))
+        for k in range(2 if pair else 1):
+            m = n + k
+            for c in range(3):
+                col = column[k, c]
+                for e in range(5):  # mirror the ends for the pass along the row
+                    col[4 - e] = col[5 + e]
+                    col[5 + w + e] = col[4 + w - e]
+            o = out[m if out.shape[0] > 1 else 0]
+            _along_row(column[k, 0], column[k, 1], column[k, 2], ux[m], var_x[m], taps, o)
+            if r <= start + m < h - r:
+                interior += _row_sum(o[r : w - r])
+        n += 2 if pair else 1
     return squared, interior
+
+
+@kernel(inline=True)
+def _along_row(a0, a1, a2, mean_x, vx, taps, o):
+    """Along one row: the three moments filtered at once, and eq. (13) on them straight away."""
+    shift, two = np.float32(128.0), np.float32(2.0)
+    c1, c2 = np.float32(C1), np.float32(C2)
+    t0, t1, t2, t3, t4, t5 = taps[0], taps[1], taps[2], taps[3], taps[4], taps[5]
+    for j in range(o.size):
+        mean_e = (t5 * a0[j + 5] + t0 * (a0[j] + a0[j + 10]) + t1 * (a0[j + 1] + a0[j + 9])
+                  + t2 * (a0[j + 2] + a0[j + 8]) + t3 * (a0[j + 3] + a0[j + 7]) + t4 * (a0[j + 4] + a0[j + 6]))
+        e2 = (t5 * a1[j + 5] + t0 * (a1[j] + a1[j + 10]) + t1 * (a1[j + 1] + a1[j + 9])
+              + t2 * (a1[j + 2] + a1[j + 8]) + t3 * (a1[j + 3] + a1[j + 7]) + t4 * (a1[j + 4] + a1[j + 6]))
+        xe = (t5 * a2[j + 5] + t0 * (a2[j] + a2[j + 10]) + t1 * (a2[j + 1] + a2[j + 9])
+              + t2 * (a2[j + 2] + a2[j + 8]) + t3 * (a2[j + 3] + a2[j + 7]) + t4 * (a2[j + 4] + a2[j + 6]))
+        mx = mean_x[j]
+        cov_xe = xe - (mx - shift) * mean_e  # sigma_xe
+        var_e = e2 - mean_e * mean_e  # sigma_e^2
+        n1 = (mx + mean_e) * mx * two + c1
+        n2 = (vx[j] + cov_xe) * two + c2
+        o[j] = (n1 * n2) / ((mean_e * mean_e + n1) * (var_e + n2))
 
 
 @kernel
