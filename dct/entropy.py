@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .jit import kernel
+from .jit import bit_length, kernel, trailing_zeros
 
 # ITU-T T.81 Annex K.3, Table K.3 (luminance DC), as BITS (codes of length 1..16) and HUFFVAL.
 STD_DC_LUMA_BITS = (0, 1, 5, 1, 1, 1, 1, 1, 1, 0, 0, 0, 0, 0, 0, 0)
@@ -236,30 +236,10 @@ def scan_interleaved(luma: np.ndarray, cb: np.ndarray, cr: np.ndarray, h: int, v
     return _finished_scan(n, event, extra, 2, histogram)
 
 
-@kernel
+@kernel(inline=True)
 def _category(magnitude):
     """SSSS (T.81 Tables F.1 and F.2): the bit length of a non-negative magnitude."""
-    if magnitude < _CATEGORY_TABLE_SIZE:
-        return np.int64(_CATEGORY[magnitude])
-    size = 0
-    while magnitude:
-        magnitude >>= 1
-        size += 1
-    return size
-
-
-# SSSS of every magnitude below 4096 (all an 8-bit baseline AC value and most DC differences reach):
-# a lookup in place of a shift loop whose length the branch predictor cannot guess.
-_CATEGORY_TABLE_SIZE = 4096
-_CATEGORY = np.array([m.bit_length() for m in range(_CATEGORY_TABLE_SIZE)], np.uint8)
-
-
-# Bit position of a 64-bit word's lowest set bit by a de Bruijn sequence: (b * _DEBRUIJN) >> 58
-# is distinct for each single bit b = 2**k (the classic multiply-and-look-up count of trailing zeros).
-_DEBRUIJN = np.uint64(0x03F79D71B4CB0A89)
-_DEBRUIJN_POSITION = np.zeros(64, np.int64)
-for _k in range(64):
-    _DEBRUIJN_POSITION[((1 << _k) * 0x03F79D71B4CB0A89 % (1 << 64)) >> 58] = _k
+    return bit_length(magnitude)
 
 
 @kernel
@@ -296,9 +276,8 @@ def _block_events(block, m, c, dc_table, previous_dc, event, extra, histogram, e
     ac = histogram[dc_table + 1]
     ac_event = (dc_table + 1) << 8
     while m:
-        low = m & (~m + np.uint64(1))  # the lowest set bit
-        m ^= low
-        k = _DEBRUIJN_POSITION[(low * _DEBRUIJN) >> np.uint64(58)]
+        k = np.int64(trailing_zeros(m))  # the next non-zero's position
+        m &= m - np.uint64(1)  # and its bit cleared
         v = np.int64(block[k])
         run = k - last - 1
         while run > 15:  # ZRL: sixteen zeros

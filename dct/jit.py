@@ -21,6 +21,8 @@ and Pillow's decoded pixels, and the modules' own tests to their numpy definitio
 from __future__ import annotations
 
 import numba
+from llvmlite import ir
+from numba.extending import intrinsic
 
 _OPTIONS = dict(nogil=True, error_model="numpy")
 
@@ -38,3 +40,30 @@ def kernel(func=None, *, inline: bool = False):
         return numba.njit(cache=True, **options)(func)
     except RuntimeError:  # no writable cache location for its source: compiled anew in each process
         return numba.njit(**options)(func)
+
+
+@intrinsic
+def trailing_zeros(typingctx, value):
+    """The number of zero bits below an integer's lowest set bit (its width for 0), for use inside
+    kernels: LLVM's cttz, one instruction on current x86-64 and ARM cores."""
+    if not isinstance(value, numba.types.Integer):
+        return None
+
+    def codegen(context, builder, signature, args):
+        return builder.cttz(args[0], ir.Constant(ir.IntType(1), 0))
+
+    return value(value), codegen
+
+
+@intrinsic
+def bit_length(value_type, value):
+    """``int.bit_length`` of a non-negative integer, for use inside kernels: its width minus LLVM's
+    ctlz (leading zero bits), one instruction on current x86-64 and ARM cores."""
+    if not isinstance(value, numba.types.Integer):
+        return None
+
+    def codegen(context, builder, signature, args):
+        width = ir.Constant(args[0].type, value.bitwidth)
+        return builder.sub(width, builder.ctlz(args[0], ir.Constant(ir.IntType(1), 0)))
+
+    return value(value), codegen

@@ -39,10 +39,9 @@ def test_magnitude_categories_table_f1():
     # T.81 Table F.1: category k holds magnitudes 2^(k-1) .. 2^k - 1.
     v = np.array([0, 1, -1, 2, 3, -4, 7, 8, 1023, -1024, 2047])
     assert [entropy._category(abs(int(x))) for x in v] == [0, 1, 1, 2, 2, 3, 3, 4, 10, 11, 11]
-    # Both sides of the lookup table's end (below it a table, from it on the shift loop).
     edge = [4095, 4096, 8191, 32767, 65535]
     assert [entropy._category(m) for m in edge] == [12, 13, 13, 15, 16]
-    # Every tabulated magnitude, against the table's definition: 2^(k-1) <= m < 2^k.
+    # Every magnitude an 8-bit baseline scan can hold, against the table's rule 2^(k-1) <= m < 2^k.
     for k in range(1, 13):
         assert {int(entropy._category(m)) for m in range(2 ** (k - 1), 2**k)} == {k}
 

@@ -23,3 +23,26 @@ def test_an_inlined_helper_gives_the_same_results_in_its_caller():
     exec(compile(source, "<generated>", "exec"), namespace)
     np.testing.assert_array_equal(namespace["apply"](np.arange(5)), 3 * np.arange(5) + 1)
     assert namespace["step"](2) == 7
+
+
+def test_bit_intrinsics_equal_pythons_integers():
+    """trailing_zeros and bit_length inside a kernel against Python's own integer arithmetic."""
+    from dct.jit import bit_length, trailing_zeros
+
+    @kernel
+    def both(values, zeros, lengths):
+        for i in range(values.size):
+            zeros[i] = trailing_zeros(values[i])
+            lengths[i] = bit_length(values[i])
+
+    rng = np.random.default_rng(3)
+    values = np.concatenate([[0, 1, 2, 3, 1 << 40, (1 << 63) - 1],
+                             rng.integers(1, 1 << 62, 200) >> rng.integers(0, 62, 200)]).astype(np.int64)
+    zeros, lengths = np.empty_like(values), np.empty_like(values)
+    both(values, zeros, lengths)
+    assert lengths.tolist() == [int(v).bit_length() for v in values]
+    assert zeros.tolist() == [64 if v == 0 else (int(v) & -int(v)).bit_length() - 1 for v in values]
+    masks = np.array([1 << 63, 1 << 5, 0], np.uint64)
+    z, n = np.empty(3, np.uint64), np.empty(3, np.uint64)
+    both(masks, z, n)
+    assert z.tolist() == [63, 5, 64] and n.tolist() == [64, 6, 0]
