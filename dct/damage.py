@@ -121,12 +121,14 @@ def _smooth_steps(distorted, reference, smooth):
         err[j] = i32(i32(distorted[0, j]) - i32(reference[0, j]))
         mask[j] = i32(smooth[0, j])
     for i in range(h):
+        # Each step is kept where both pixels are smooth by and-ing with -1 (and dropped with 0);
+        # the row sums wrap to 32 bits like every step, so the loops stay in 32-bit lanes.
         along = i32(0)
         for j in range(w - 1):
-            along += i32(i32(abs(i32(err[j + 1] - err[j]))) * i32(mask[j] & mask[j + 1]))
+            along = i32(along + (i32(abs(i32(err[j + 1] - err[j]))) & -i32(mask[j] & mask[j + 1])))
         along_across = i32(0)
         for j in range(BLOCK - 1, w - 1, BLOCK):
-            along_across += i32(i32(abs(i32(err[j + 1] - err[j]))) * i32(mask[j] & mask[j + 1]))
+            along_across = i32(along_across + (i32(abs(i32(err[j + 1] - err[j]))) & -i32(mask[j] & mask[j + 1])))
         down = i32(0)
         if i + 1 < h:
             d, r, m = distorted[i + 1], reference[i + 1], smooth[i + 1]
@@ -134,7 +136,7 @@ def _smooth_steps(distorted, reference, smooth):
                 err_below[j] = i32(i32(d[j]) - i32(r[j]))
                 mask_below[j] = i32(m[j])
             for j in range(w):
-                down += i32(i32(abs(i32(err_below[j] - err[j]))) * i32(mask[j] & mask_below[j]))
+                down = i32(down + (i32(abs(i32(err_below[j] - err[j]))) & -i32(mask[j] & mask_below[j])))
         across += along_across
         inside += along - along_across
         if i % BLOCK == BLOCK - 1:
