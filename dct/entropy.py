@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .jit import bit_length, kernel, trailing_zeros
+from .jit import bit_length, kernel, popcount, trailing_zeros
 
 # ITU-T T.81 Annex K.3, Table K.3 (luminance DC), as BITS (codes of length 1..16) and HUFFVAL.
 STD_DC_LUMA_BITS = (0, 1, 5, 1, 1, 1, 1, 1, 1, 0, 0, 0, 0, 0, 0, 0)
@@ -190,7 +190,7 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
     event = np.empty(room, np.uint16)
     extra = np.empty(room, np.int32)
     histogram = np.zeros((2 * groups, 256), np.int64)
-    n = _fill_events(blocks, _nonzero_masks(blocks), component, group, previous_dc, event, extra, histogram)
+    n = _fill_events(blocks, _nonzero_masks(blocks)[0], component, group, previous_dc, event, extra, histogram)
     return _finished_scan(n, event, extra, groups, histogram)
 
 
@@ -228,11 +228,13 @@ def scan_interleaved(luma: np.ndarray, cb: np.ndarray, cr: np.ndarray, h: int, v
     if arrays[2].shape != arrays[1].shape or (arrays[1].shape[0] * v < arrays[0].shape[0]
                                               or arrays[1].shape[1] * h < arrays[0].shape[1]):
         raise ValueError(f"blocks of shapes {[a.shape for a in arrays]} are not one {h}x{v} MCU grid")
-    room = sum(int(np.count_nonzero(a)) for a in arrays) + 5 * mcus * (h * v + 2)
+    masks, nonzero = zip(*(_nonzero_masks(a) for a in arrays))
+    # Room for every event: per block a DC, its AC non-zeros, at most 3 ZRLs and an EOB.
+    room = sum(nonzero) + 5 * mcus * (h * v + 2)
     event = np.empty(room, np.uint16)
     extra = np.empty(room, np.int32)
     histogram = np.zeros((4, 256), np.int64)
-    n = _fill_interleaved_events(arrays[0], arrays[1], arrays[2], h, v, event, extra, histogram)
+    n = _fill_interleaved_events(arrays[0], arrays[1], arrays[2], *masks, h, v, event, extra, histogram)
     return _finished_scan(n, event, extra, 2, histogram)
 
 
@@ -244,17 +246,20 @@ def _category(magnitude):
 
 @kernel
 def _nonzero_masks(blocks):
-    """Per block of (..., 64), a 64-bit word whose bit k is set where AC coefficient k is non-zero
-    (a pass of its own: the compiler vectorizes it there, not inside the event loop)."""
+    """Per block of (..., 64) (shaped as the blocks are), a 64-bit word whose bit k is set where AC
+    coefficient k is non-zero, and how many AC coefficients are non-zero in all: a pass of its own,
+    which the compiler vectorizes (inside the event loop it would not)."""
     flat = blocks.reshape(-1, 64)
     masks = np.zeros(flat.shape[0], np.uint64)
+    count = 0
     for b in range(flat.shape[0]):
         block = flat[b]
         m = np.uint64(0)
         for k in range(1, 64):
             m |= np.uint64(block[k] != 0) << np.uint64(k)
         masks[b] = m
-    return masks
+        count += popcount(m)
+    return masks.reshape(blocks.shape[:-1]), count
 
 
 @kernel(inline=True)
@@ -312,12 +317,9 @@ def _fill_events(blocks, masks, component, group, previous_dc, event, extra, his
 
 
 @kernel
-def _fill_interleaved_events(luma, cb, cr, h, v, event, extra, histogram):
+def _fill_interleaved_events(luma, cb, cr, luma_masks, cb_masks, cr_masks, h, v, event, extra, histogram):
     """The events of an interleaved scan, MCU by MCU (see :func:`scan_interleaved`)."""
     nby, nbx = luma.shape[0], luma.shape[1]
-    luma_masks = _nonzero_masks(luma).reshape(nby, nbx)
-    cb_masks = _nonzero_masks(cb).reshape(cb.shape[0], cb.shape[1])
-    cr_masks = _nonzero_masks(cr).reshape(cr.shape[0], cr.shape[1])
     previous_dc = np.zeros(3, np.int64)
     dummy = np.zeros(64, luma.dtype)
     e = 0

@@ -67,3 +67,15 @@ def bit_length(value_type, value):
         return builder.sub(width, builder.ctlz(args[0], ir.Constant(ir.IntType(1), 0)))
 
     return value(value), codegen
+
+
+@intrinsic
+def popcount(value_type, value):
+    """The number of set bits of an integer, for use inside kernels: LLVM's ctpop."""
+    if not isinstance(value, numba.types.Integer):
+        return None
+
+    def codegen(context, builder, signature, args):
+        return builder.ctpop(args[0])
+
+    return value(value), codegen

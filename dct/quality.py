@@ -121,7 +121,8 @@ class ReferenceStats:
         if self.keep_stats:
             self.mean = np.empty(ref.shape, dtype=np.float32)  # mu_x
             self.var = np.empty(ref.shape, dtype=np.float32)  # sigma_x^2
-            for s, e in self._strips():
+            for s in range(0, ref.shape[0], STRIP):  # strip by strip: bounded temporaries
+                e = min(s + STRIP, ref.shape[0])
                 self.mean[s:e], self.var[s:e] = self._strip_stats(s, e)
 
     def _strip_stats(self, s: int, e: int) -> tuple[np.ndarray, np.ndarray]:
@@ -132,9 +133,12 @@ class ReferenceStats:
         return ux + 128.0, xx - ux * ux
 
     def _strips(self):
+        """Row ranges compared in one call: the whole plane when its statistics are kept (the
+        window's halo is then filtered once), strips of STRIP rows when they are recomputed."""
         h = self.shape[0]
-        for s in range(0, h, STRIP):
-            yield s, min(s + STRIP, h)
+        step = h if self.keep_stats else STRIP
+        for s in range(0, h, step):
+            yield s, min(s + step, h)
 
     def compare(self, distorted: np.ndarray, *, want_map: bool = False, want_local: bool = True,
                 at: np.ndarray | None = None) -> "SsimResult":

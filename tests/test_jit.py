@@ -26,14 +26,19 @@ def test_an_inlined_helper_gives_the_same_results_in_its_caller():
 
 
 def test_bit_intrinsics_equal_pythons_integers():
-    """trailing_zeros and bit_length inside a kernel against Python's own integer arithmetic."""
-    from dct.jit import bit_length, trailing_zeros
+    """trailing_zeros, bit_length and popcount inside a kernel against Python's own integer arithmetic."""
+    from dct.jit import bit_length, popcount, trailing_zeros
 
     @kernel
     def both(values, zeros, lengths):
         for i in range(values.size):
             zeros[i] = trailing_zeros(values[i])
             lengths[i] = bit_length(values[i])
+
+    @kernel
+    def ones(values, out):
+        for i in range(values.size):
+            out[i] = popcount(values[i])
 
     rng = np.random.default_rng(3)
     values = np.concatenate([[0, 1, 2, 3, 1 << 40, (1 << 63) - 1],
@@ -42,6 +47,9 @@ def test_bit_intrinsics_equal_pythons_integers():
     both(values, zeros, lengths)
     assert lengths.tolist() == [int(v).bit_length() for v in values]
     assert zeros.tolist() == [64 if v == 0 else (int(v) & -int(v)).bit_length() - 1 for v in values]
+    counts = np.empty_like(values)
+    ones(values, counts)
+    assert counts.tolist() == [bin(int(v)).count("1") for v in values]
     masks = np.array([1 << 63, 1 << 5, 0], np.uint64)
     z, n = np.empty(3, np.uint64), np.empty(3, np.uint64)
     both(masks, z, n)
