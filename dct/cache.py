@@ -15,7 +15,7 @@ import tempfile
 from pathlib import Path
 from typing import Protocol
 
-ENGINE_VERSION = "5"  # 3: bit-exact with libjpeg-turbo; 4: PSNR summed in float64, sweeps without standard_bytes; 5: compiled loops (PSNR and blocking sums in another order). Bump when the engine's numbers change, so old results are not reused
+ENGINE_VERSION = "6"  # 3: bit-exact with libjpeg-turbo; 4: PSNR summed in float64, sweeps without standard_bytes; 5: compiled loops (PSNR and blocking sums in another order); 6: SSIM means summed over the whole plane in one pass (last-bit differences). Bump when the engine's numbers change, so old results are not reused
 
 
 class ResultCache(Protocol):
