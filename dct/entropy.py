@@ -189,14 +189,16 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
     room = np.count_nonzero(blocks) + 5 * blocks.shape[0]
     event = np.empty(room, np.uint16)
     extra = np.empty(room, np.int32)
-    histogram = np.zeros((2 * groups, 256), np.int64)
-    n = _fill_events(blocks, _nonzero_masks(blocks)[0], component, group, previous_dc, event, extra, histogram)
-    return _finished_scan(n, event, extra, groups, histogram)
+    n = _fill_events(blocks, _nonzero_masks(blocks)[0], component, group, previous_dc, event, extra)
+    return _finished_scan(n, event, extra, groups)
 
 
-def _finished_scan(n: int, event: np.ndarray, extra: np.ndarray, groups: int, histogram: np.ndarray) -> Scan:
+def _finished_scan(n: int, event: np.ndarray, extra: np.ndarray, groups: int) -> Scan:
+    """The scan of the first ``n`` events written, counted per table and symbol."""
     if n < 0:
         raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
+    histogram = np.zeros((2 * groups, 256), np.int64)
+    _count_events(event[:n], histogram.reshape(-1))
     # Magnitude bits follow from the counts: SSSS is a DC symbol itself, an AC symbol's low nibble.
     extra_bits = histogram[0::2] @ _DC_SIZE + histogram[1::2] @ _AC_SIZE
     return Scan(event[:n], extra[:n], groups, histogram, extra_bits)
@@ -233,9 +235,8 @@ def scan_interleaved(luma: np.ndarray, cb: np.ndarray, cr: np.ndarray, h: int, v
     room = sum(nonzero) + 5 * mcus * (h * v + 2)
     event = np.empty(room, np.uint16)
     extra = np.empty(room, np.int32)
-    histogram = np.zeros((4, 256), np.int64)
-    n = _fill_interleaved_events(arrays[0], arrays[1], arrays[2], *masks, h, v, event, extra, histogram)
-    return _finished_scan(n, event, extra, 2, histogram)
+    n = _fill_interleaved_events(arrays[0], arrays[1], arrays[2], *masks, h, v, event, extra)
+    return _finished_scan(n, event, extra, 2)
 
 
 @kernel(inline=True)
@@ -263,9 +264,10 @@ def _nonzero_masks(blocks):
 
 
 @kernel(inline=True)
-def _block_events(block, m, c, dc_table, previous_dc, event, extra, histogram, e):
-    """Append one block's events (T.81 F.1.2.1 and F.1.2.2) from position ``e`` and count them per
-    table and symbol; the new count, or -1 if its DC difference needs more than 16 bits. ``m``, the
+def _block_events(block, m, c, dc_table, previous_dc, event, extra, e):
+    """Append one block's events (T.81 F.1.2.1 and F.1.2.2) from position ``e``; the new count, or
+    -1 if its DC difference needs more than 16 bits (they are counted afterwards, by
+    :func:`_count_events`). ``m``, the
     mask of its AC non-zeros (:func:`_nonzero_masks`), leads straight from one to the next."""
     dc = np.int64(block[0])
     diff = dc - previous_dc[c]
@@ -275,10 +277,8 @@ def _block_events(block, m, c, dc_table, previous_dc, event, extra, histogram, e
         return -1
     event[e] = (dc_table << 8) | size
     extra[e] = diff if diff >= 0 else diff + (1 << size) - 1  # negative: v - 1 in SSSS bits
-    histogram[dc_table, size] += 1
     e += 1
     last = 0
-    ac = histogram[dc_table + 1]
     ac_event = (dc_table + 1) << 8
     while m:
         k = np.int64(trailing_zeros(m))  # the next non-zero's position
@@ -287,37 +287,51 @@ def _block_events(block, m, c, dc_table, previous_dc, event, extra, histogram, e
         run = k - last - 1
         while run > 15:  # ZRL: sixteen zeros
             event[e], extra[e] = ac_event | ZRL, 0
-            ac[ZRL] += 1
             e += 1
             run -= 16
         size = _category(abs(v))
         symbol = (run << 4) | size
         event[e] = ac_event | symbol
         extra[e] = v if v >= 0 else v + (1 << size) - 1
-        ac[symbol] += 1
         e += 1
         last = k
     if last != 63:
         event[e], extra[e] = ac_event | EOB, 0
-        ac[EOB] += 1
         e += 1
     return e
 
 
 @kernel
-def _fill_events(blocks, masks, component, group, previous_dc, event, extra, histogram):
+def _count_events(event, counts):
+    """Add each event to ``counts`` (flat: 256 * table + symbol), in four interleaved partial
+    histograms so that repeated symbols do not wait on each other's increments."""
+    part = np.zeros((4, counts.size), np.int64)
+    n = event.size - event.size % 4
+    for i in range(0, n, 4):
+        part[0, event[i]] += 1
+        part[1, event[i + 1]] += 1
+        part[2, event[i + 2]] += 1
+        part[3, event[i + 3]] += 1
+    for i in range(n, event.size):
+        part[0, event[i]] += 1
+    for k in range(counts.size):
+        counts[k] += part[0, k] + part[1, k] + part[2, k] + part[3, k]
+
+
+@kernel
+def _fill_events(blocks, masks, component, group, previous_dc, event, extra):
     """The events of blocks given in coding order with their components; their number, or -1."""
     e = 0
     for b in range(blocks.shape[0]):
         c = component[b]
-        e = _block_events(blocks[b], masks[b], c, 2 * group[c], previous_dc, event, extra, histogram, e)
+        e = _block_events(blocks[b], masks[b], c, 2 * group[c], previous_dc, event, extra, e)
         if e < 0:
             return -1
     return e
 
 
 @kernel
-def _fill_interleaved_events(luma, cb, cr, luma_masks, cb_masks, cr_masks, h, v, event, extra, histogram):
+def _fill_interleaved_events(luma, cb, cr, luma_masks, cb_masks, cr_masks, h, v, event, extra):
     """The events of an interleaved scan, MCU by MCU (see :func:`scan_interleaved`)."""
     nby, nbx = luma.shape[0], luma.shape[1]
     previous_dc = np.zeros(3, np.int64)
@@ -329,16 +343,16 @@ def _fill_interleaved_events(luma, cb, cr, luma_masks, cb_masks, cr_masks, h, v,
                 for dx in range(h):
                     by, bx = my * v + dy, mx * h + dx
                     if by < nby and bx < nbx:
-                        e = _block_events(luma[by, bx], luma_masks[by, bx], 0, 0, previous_dc, event, extra, histogram, e)
+                        e = _block_events(luma[by, bx], luma_masks[by, bx], 0, 0, previous_dc, event, extra, e)
                     else:  # a dummy block: no AC, the DC of a neighbour
                         dummy[0] = luma[by, nbx - 1, 0] if by < nby else luma[nby - 1, min(mx * h + h - 1, nbx - 1), 0]
-                        e = _block_events(dummy, np.uint64(0), 0, 0, previous_dc, event, extra, histogram, e)
+                        e = _block_events(dummy, np.uint64(0), 0, 0, previous_dc, event, extra, e)
                     if e < 0:
                         return -1
-            e = _block_events(cb[my, mx], cb_masks[my, mx], 1, 2, previous_dc, event, extra, histogram, e)
+            e = _block_events(cb[my, mx], cb_masks[my, mx], 1, 2, previous_dc, event, extra, e)
             if e < 0:
                 return -1
-            e = _block_events(cr[my, mx], cr_masks[my, mx], 2, 2, previous_dc, event, extra, histogram, e)
+            e = _block_events(cr[my, mx], cr_masks[my, mx], 2, 2, previous_dc, event, extra, e)
             if e < 0:
                 return -1
     return e
