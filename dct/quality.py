@@ -168,31 +168,32 @@ class ReferenceStats:
         y = np.ascontiguousarray(y)
         if y.shape != self.shape:
             raise ValueError(f"distorted plane has shape {y.shape!r}, the reference {self.shape!r}")
-        gathered = []
-        if at is not None:
-            at = np.asarray(at)
-            bounds = np.searchsorted(at, [s * self.shape[1] for s, _ in self._strips()] + [y.size])
         h, w = self.shape
+        if at is not None:
+            at = np.asarray(at, dtype=np.int64)
+            bounds = np.searchsorted(at, [s * w for s, _ in self._strips()] + [y.size])
         ssim_map = np.empty(self.shape, dtype=np.float32) if want_map else None
         taps = gaussian_weights().astype(np.float32)  # 2 * RADIUS + 1 = 11, as _ssim_rows unrolls them
         total = sq_err = 0.0
-        tiles = []
+        tiles, gathered = [], []
         row_buffer = np.empty((1, w), dtype=np.float32)
+        t = LOCAL_TILE
         for number, (s, e) in enumerate(self._strips()):
             ux, var_x = (self.mean[s:e], self.var[s:e]) if self.keep_stats else self._strip_stats(s, e)
-            if ssim_map is not None:
-                strip = ssim_map[s:e]
-            elif at is not None or want_local:
-                strip = np.empty((e - s, w), dtype=np.float32)
-            else:  # only the mean is asked for: each row of the map is summed and forgotten
-                strip = row_buffer
-            squared, interior = _ssim_rows(self.plane, y, s, e, ux, var_x, taps, strip)  # eq. (13), rows s..e
+            # Without a map, each row of it is made in a scratch row; the kernel takes what is asked of
+            # it there (the values at ``at``, the tile sums) before the next row is made.
+            strip = ssim_map[s:e] if ssim_map is not None else row_buffer
+            picks = at[bounds[number] : bounds[number + 1]] - s * w if at is not None else _NO_PICKS
+            values = np.empty(picks.size, dtype=np.float32)
+            sums = np.zeros((-(-(e - s) // t), -(-w // t)) if want_local else (0, 0), dtype=np.float64)
+            squared, interior = _ssim_rows(self.plane, y, s, e, ux, var_x, taps, strip, picks, values, sums)
             sq_err += squared
             total += interior
-            if at is not None:
-                gathered.append(strip.reshape(-1)[at[bounds[number] : bounds[number + 1]] - s * w])
-            if want_local:
-                tiles.append(_tile_means(strip))
+            gathered.append(values)
+            if want_local:  # tile sums to means; the partial tiles at the edges over their own pixels
+                down = np.minimum(t, (e - s) - np.arange(sums.shape[0]) * t)
+                across = np.minimum(t, w - np.arange(sums.shape[1]) * t)
+                tiles.append(sums / np.outer(down, across))
         count = (h - 2 * RADIUS) * (w - 2 * RADIUS)  # the mean's interior, cropped as scikit-image crops
         tile_means = np.concatenate(tiles, axis=0) if tiles else None
         return SsimResult(
@@ -205,12 +206,20 @@ class ReferenceStats:
         )
 
 
+_NO_PICKS = np.zeros(0, dtype=np.int64)
+
+
 @kernel
-def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
+def _ssim_rows(x, y, start, stop, ux, var_x, taps, out, picks, values, tile_sums):
     """Eq. (13) for rows start..stop of the map, into ``out``; returns the sum of e^2 over those rows
     and the sum of the map over their interior (a RADIUS-wide border left out), both float64. An
-    ``out`` of one row is a scratch row: every row of the map is written there, summed and dropped
-    (no map kept when only the mean is wanted, which saves writing a full-size array).
+    ``out`` of one row is a scratch row: every row of the map is written there and dropped once the
+    rest is taken from it, so no full-size map is written unless it is wanted. From each row:
+
+    * ``values`` receives the map at ``picks`` (sorted flat indices into rows start..stop);
+    * ``tile_sums`` (LOCAL_TILE-row bands by LOCAL_TILE-column tiles, float64; shape (0, 0) for
+      none) receives each tile's sum: each band's rows are summed down every column in order, then
+      each tile's columns added in order.
 
     One pass per row, in float32: the moments of the error e = y - x (e, e^2 and (x - 128) e) are
     made for each input row once, kept in a ring of the 2r + 1 rows the window spans, filtered down
@@ -234,6 +243,8 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
     t0, t1, t2, t3, t4, t5 = taps[0], taps[1], taps[2], taps[3], taps[4], taps[5]
     squared = interior = 0.0
     count = stop - start
+    picked = 0  # how many of ``picks`` are taken
+    down = np.zeros(w if tile_sums.shape[0] else 0, np.float64)  # the band's column sums, for tiles
     arrived = start - r  # the next input row to bring into the ring (mirrored past the edges)
     n = 0
     while n < count:  # output rows start + n and, but for a last odd one, start + n + 1
@@ -286,6 +297,20 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out):
             _along_row(column[k, 0], column[k, 1], column[k, 2], ux[m], var_x[m], taps, o)
             if r <= start + m < h - r:
                 interior += _row_sum(o[r : w - r])
+            while picked < picks.size and picks[picked] < (m + 1) * w:
+                values[picked] = o[picks[picked] - m * w]
+                picked += 1
+            if tile_sums.shape[0]:
+                for j in range(w):
+                    down[j] += o[j]
+                if (m + 1) % LOCAL_TILE == 0 or m + 1 == count:  # a band of tiles is complete
+                    band = tile_sums[m // LOCAL_TILE]
+                    for tx in range(band.size):
+                        tile = 0.0
+                        for j in range(tx * LOCAL_TILE, min(tx * LOCAL_TILE + LOCAL_TILE, w)):
+                            tile += down[j]
+                        band[tx] = tile
+                    down[:] = 0.0
         n += 2 if pair else 1
     return squared, interior
 
@@ -324,36 +349,6 @@ def _row_sum(row):
     for j in range(n, row.size):
         total += row[j]
     return total + lanes.sum()
-
-
-def _tile_means(strip: np.ndarray) -> np.ndarray:
-    """Mean SSIM of LOCAL_TILE-sized tiles of a strip (partial edge tiles use their own pixels)."""
-    return _tile_means_of(strip, LOCAL_TILE)
-
-
-@kernel
-def _tile_means_of(strip, t):
-    """t x t tile means of a float32 plane, float64: each band of t rows summed down its columns,
-    then each tile's t column sums added; the partial tiles at the right and bottom edges are
-    divided by their own pixel count."""
-    h, w = strip.shape
-    ty, tx = (h + t - 1) // t, (w + t - 1) // t
-    down = np.empty(w, np.float64)
-    out = np.empty((ty, tx), np.float64)
-    for top in range(0, h, t):
-        bottom = min(top + t, h)
-        down[:] = 0.0
-        for i in range(top, bottom):
-            row = strip[i]
-            for j in range(w):
-                down[j] += row[j]
-        for x in range(tx):
-            left, right = x * t, min(x * t + t, w)
-            total = 0.0
-            for j in range(left, right):
-                total += down[j]
-            out[top // t, x] = total / ((bottom - top) * (right - left))
-    return out
 
 
 class SsimResult:

@@ -127,17 +127,26 @@ def test_recomputed_reference_statistics_give_the_same_ssim():
     np.testing.assert_array_equal(kept.ssim_map, recomputed.ssim_map)
 
 
-def test_tile_means_equal_each_tiles_own_mean():
-    """The compiled tile means against the definition: the mean of each 16 x 16 tile, the partial
-    tiles at the right and bottom edges over their own pixels."""
+def test_tile_means_and_gathered_values_equal_the_maps_own():
+    """Without a map, the kernel takes the tile means and the values at given pixels from each row
+    as it makes it: they must be the full map's own (each 16 x 16 tile's mean, the partial tiles at
+    the right and bottom over their own pixels; the map at those pixels), for kept statistics (one
+    pass over the plane) and recomputed ones (strips)."""
     rng = np.random.default_rng(5)
-    for shape in [(256, 1000), (238, 1001), (16, 16), (17, 33), (5, 7)]:
-        strip = rng.random(shape, dtype=np.float32)
-        got = quality._tile_means(strip)
+    for shape, keep in [((300, 203), True), ((quality.STRIP * 2 + 37, 61), False), ((17, 33), True)]:
+        x = rng.integers(0, 256, shape).astype(np.uint8)
+        y = np.clip(x + rng.normal(0, 7, shape), 0, 255).astype(np.uint8)
+        ref = quality.ReferenceStats(x, keep_stats=keep)
+        at = np.sort(rng.choice(x.size, size=x.size // 9, replace=False))
+        full = ref.compare(y, want_map=True)
+        lean = ref.compare(y, at=at)
         t = quality.LOCAL_TILE
-        want = np.array([[strip[y : y + t, x : x + t].astype(np.float64).mean() for x in range(0, shape[1], t)]
-                         for y in range(0, shape[0], t)])
-        np.testing.assert_allclose(got, want, rtol=1e-12, atol=0)
+        m = full.ssim_map.astype(np.float64)
+        want = np.array([[m[r : r + t, c : c + t].mean() for c in range(0, shape[1], t)] for r in range(0, shape[0], t)])
+        np.testing.assert_allclose(lean.tile_means, want, rtol=1e-12, atol=0)
+        np.testing.assert_array_equal(lean.tile_means, full.tile_means)
+        np.testing.assert_array_equal(lean.values_at, full.ssim_map.reshape(-1)[at])
+        assert (lean.ssim, lean.local, lean.psnr) == (full.ssim, full.local, full.psnr)
 
 
 def test_mean_only_comparison_equals_the_full_one():
