@@ -2,8 +2,8 @@
 
 Most of the engine is whole-array numpy. A few steps are loops over blocks or pixels that numpy can
 only express as a dozen whole-array passes with temporaries (the scan's symbols in coding order,
-the bit assembly that counts 0xFF stuffing, libjpeg's inverse DCT with its per-column shortcut, the
-SSIM formula after filtering). Those are written as plain Python loops and compiled by numba on
+the bit assembly that counts 0xFF stuffing, libjpeg's inverse DCT, the SSIM formula after
+filtering). Those are written as plain Python loops and compiled by numba on
 first use. What they must equal does not change: tests/test_exact.py holds them to libjpeg's bytes
 and Pillow's decoded pixels, and the modules' own tests to their numpy definitions.
 
