@@ -21,7 +21,8 @@ Speed: the reference image's mean and variance depend only on the reference, so 
 ``BORDER_REFLECT``, which mirrors the edge sample as scipy's "reflect" does). Each setting then needs
 only the three filtered images that involve the distorted image; a compiled loop (``dct.jit``)
 makes them row by row from the error, filters them and applies eq. (13) in one pass
-(:func:`_ssim_rows`), over row strips, so temporary memory stays bounded for any image size. Second
+(:func:`_ssim_rows`): over the whole plane where its statistics are kept, over row strips where
+they are recomputed, so temporary memory stays bounded for any image size. Second
 moments are taken on level-shifted samples (minus 128) to keep float32 cancellation small. OpenCV's
 own thread pool is left to the caller (``dct.threads``): a sweep runs one image per core.
 """
@@ -222,9 +223,10 @@ def _ssim_rows(x, y, start, stop, ux, var_x, taps, out, picks, values, tile_sums
       each tile's columns added in order.
 
     One pass per row, in float32: the moments of the error e = y - x (e, e^2 and (x - 128) e) are
-    made for each input row once, kept in a ring of the 2r + 1 rows the window spans, filtered down
-    the columns and then along the row (the separable Gaussian ``taps``, mirrored past every edge
-    as scipy's "reflect" and OpenCV's ``BORDER_REFLECT`` mirror), and eq. (13) is applied at once.
+    made for each input row once, kept in a ring of the 2r + 2 rows that two neighbouring output
+    rows' windows span, filtered down the columns for both rows at once and then along each row (the
+    separable Gaussian ``taps``, mirrored past every edge as scipy's "reflect" and OpenCV's
+    ``BORDER_REFLECT`` mirror), and eq. (13) is applied at once.
     Nothing full-size is made, and each loop runs along a contiguous row, which the compiler
     vectorizes.
 
