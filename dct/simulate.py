@@ -178,18 +178,21 @@ class _Recent:
     def __init__(self, size: int, max_bytes: int = 24 << 20):
         self.size = size
         self.max_bytes = max_bytes
-        self._items: OrderedDict = OrderedDict()
+        self._items: OrderedDict = OrderedDict()  # key -> (value, its bytes when stored)
+        self._bytes = 0
 
     def get(self, key, make):
         if key in self._items:
             self._items.move_to_end(key)
-            return self._items[key]
+            return self._items[key][0]
         value = make()
-        if _nbytes(value) > self.max_bytes:
+        size = _nbytes(value)
+        if size > self.max_bytes:
             return value  # too large to keep: recomputed when asked again
-        self._items[key] = value
-        while len(self._items) > self.size or sum(_nbytes(v) for v in self._items.values()) > self.max_bytes:
-            self._items.popitem(last=False)
+        self._items[key] = (value, size)
+        self._bytes += size
+        while len(self._items) > self.size or self._bytes > self.max_bytes:
+            self._bytes -= self._items.popitem(last=False)[1][1]
         return value
 
 

@@ -189,3 +189,29 @@ def test_quantizer_lanes_equal_the_reciprocal_formula_in_python_integers():
                 magnitude = [((abs(int(t)) + int(c[k])) * int(fq[k])) >> int(r[k]) for t in values]
                 want = np.sign(values) * np.array(magnitude)
                 np.testing.assert_array_equal(got[:, k], want)
+
+
+def test_recent_cache_keeps_its_count_and_byte_bounds():
+    """The per-table cache evicts the least recently used entries past its count or its bytes, and
+    keeps nothing larger than its byte bound."""
+    from dct.simulate import _Recent
+
+    cache = _Recent(3, max_bytes=1000)
+    made = []
+
+    def make(n):
+        def build():
+            made.append(n)
+            return np.zeros(n, np.uint8)
+        return build
+
+    for key, n in [("a", 300), ("b", 300), ("c", 300)]:
+        cache.get(key, make(n))
+    cache.get("a", make(300))  # a hit: "a" becomes the most recent
+    cache.get("d", make(300))  # 1200 bytes: the least recent ("b") goes
+    assert list(cache._items) == ["c", "a", "d"] and cache._bytes == 900
+    cache.get("e", make(50))  # four entries: "c" goes
+    assert list(cache._items) == ["a", "d", "e"] and cache._bytes == 650
+    cache.get("big", make(2000))  # larger than the bound: returned, never kept
+    assert "big" not in cache._items and cache._bytes == 650
+    assert made == [300, 300, 300, 300, 50, 2000]
