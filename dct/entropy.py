@@ -225,7 +225,12 @@ def scan_interleaved(luma: np.ndarray, cb: np.ndarray, cr: np.ndarray, h: int, v
     below the bottom the last real row's block at the MCU's right-hand column (or the row's last
     real block, where that column is past the edge too).
     """
-    arrays = [np.ascontiguousarray(a, dtype=np.int16) for a in (luma, cb, cr)]
+    arrays = []
+    for a in (luma, cb, cr):
+        a = np.asarray(a)
+        if a.dtype != np.int16 and a.size and np.abs(a).max() > np.iinfo(np.int16).max:
+            raise ValueError(f"coefficient magnitude {int(np.abs(a).max())} is beyond baseline JPEG's range")
+        arrays.append(np.ascontiguousarray(a, dtype=np.int16))
     mcus = arrays[1].shape[0] * arrays[1].shape[1]
     if arrays[2].shape != arrays[1].shape or (arrays[1].shape[0] * v < arrays[0].shape[0]
                                               or arrays[1].shape[1] * h < arrays[0].shape[1]):

@@ -286,3 +286,14 @@ def test_interleaved_scan_equals_the_blocks_in_mcu_order():
         np.testing.assert_array_equal(got.extra, want.extra)
         np.testing.assert_array_equal(got.histogram, want.histogram)
         np.testing.assert_array_equal(got.extra_bits, want.extra_bits)
+
+
+def test_interleaved_scan_refuses_coefficients_beyond_baseline():
+    import numpy as np
+    import pytest
+
+    luma = np.zeros((2, 2, 64), np.int32)
+    luma[0, 0, 3] = 40000
+    chroma = np.zeros((1, 1, 64), np.int16)
+    with pytest.raises(ValueError, match="beyond baseline"):
+        entropy.scan_interleaved(luma, chroma, chroma, 2, 2)
