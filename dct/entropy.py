@@ -118,14 +118,18 @@ class Scan:
         for negative v).
     groups : int — how many Huffman table pairs the scan uses.
     histogram : ndarray, shape (2 * groups, 256), int64 — the events counted per table and symbol.
-    extra_bits : ndarray, shape (groups,), int64 — magnitude bits per table pair.
     """
 
     event: np.ndarray
     extra: np.ndarray
     groups: int
     histogram: np.ndarray
-    extra_bits: np.ndarray
+
+    @property
+    def extra_bits(self) -> np.ndarray:
+        """Magnitude bits per table pair, shape (groups,): they follow from the counts (SSSS is a DC
+        symbol itself, an AC symbol's low nibble)."""
+        return self.histogram[0::2] @ _DC_SIZE + self.histogram[1::2] @ _AC_SIZE
 
     def counts(self, table: int) -> np.ndarray:
         """Symbol counts of one table: shape (16,) for DC tables, (256,) for AC tables."""
@@ -167,7 +171,7 @@ def scan_chunks(chunks, group_of_component: tuple[int, ...]) -> Scan:
     if len(parts) == 1:
         return parts[0]
     return Scan(np.concatenate([p.event for p in parts]), np.concatenate([p.extra for p in parts]), parts[0].groups,
-                sum(p.histogram for p in parts), sum(p.extra_bits for p in parts))
+                sum(p.histogram for p in parts))
 
 
 _SCAN_CHUNK = 1 << 15
@@ -177,11 +181,7 @@ def _scan_part(blocks: np.ndarray, component: np.ndarray, group_of_component: tu
                previous_dc: np.ndarray) -> Scan:
     """:func:`scan_symbols` of consecutive blocks, each component's DC predicted from ``previous_dc``
     (which is left holding each component's last DC, for the next piece)."""
-    if blocks.dtype != np.int16:
-        if blocks.size and np.abs(blocks).max() > np.iinfo(np.int16).max:
-            raise ValueError(f"coefficient magnitude {int(np.abs(blocks).max())} is beyond baseline JPEG's range")
-        blocks = blocks.astype(np.int16)
-    blocks = np.ascontiguousarray(blocks)
+    blocks = _coefficients(blocks)
     component = np.ascontiguousarray(component, dtype=np.int8)
     group = np.asarray(group_of_component, dtype=np.int8)
     groups = len(set(group_of_component))
@@ -199,9 +199,15 @@ def _finished_scan(n: int, event: np.ndarray, extra: np.ndarray, groups: int) ->
         raise ValueError("a DC difference is beyond baseline JPEG's range (16-bit categories)")
     histogram = np.zeros((2 * groups, 256), np.int64)
     _count_events(event[:n], histogram.reshape(-1))
-    # Magnitude bits follow from the counts: SSSS is a DC symbol itself, an AC symbol's low nibble.
-    extra_bits = histogram[0::2] @ _DC_SIZE + histogram[1::2] @ _AC_SIZE
-    return Scan(event[:n], extra[:n], groups, histogram, extra_bits)
+    return Scan(event[:n], extra[:n], groups, histogram)
+
+
+def _coefficients(blocks) -> np.ndarray:
+    """Quantized blocks as contiguous int16 (libjpeg's JCOEF), refusing values that do not fit."""
+    blocks = np.asarray(blocks)
+    if blocks.dtype != np.int16 and blocks.size and np.abs(blocks).max() > np.iinfo(np.int16).max:
+        raise ValueError(f"coefficient magnitude {int(np.abs(blocks).max())} is beyond baseline JPEG's range")
+    return np.ascontiguousarray(blocks, dtype=np.int16)
 
 
 _DC_SIZE = np.where(np.arange(256) <= 16, np.arange(256), 0).astype(np.int64)
@@ -225,12 +231,7 @@ def scan_interleaved(luma: np.ndarray, cb: np.ndarray, cr: np.ndarray, h: int, v
     below the bottom the last real row's block at the MCU's right-hand column (or the row's last
     real block, where that column is past the edge too).
     """
-    arrays = []
-    for a in (luma, cb, cr):
-        a = np.asarray(a)
-        if a.dtype != np.int16 and a.size and np.abs(a).max() > np.iinfo(np.int16).max:
-            raise ValueError(f"coefficient magnitude {int(np.abs(a).max())} is beyond baseline JPEG's range")
-        arrays.append(np.ascontiguousarray(a, dtype=np.int16))
+    arrays = [_coefficients(a) for a in (luma, cb, cr)]
     mcus = arrays[1].shape[0] * arrays[1].shape[1]
     if arrays[2].shape != arrays[1].shape or (arrays[1].shape[0] * v < arrays[0].shape[0]
                                               or arrays[1].shape[1] * h < arrays[0].shape[1]):
@@ -271,9 +272,9 @@ def _nonzero_masks(blocks):
 @kernel(inline=True)
 def _block_events(block, m, c, dc_table, previous_dc, event, extra, e):
     """Append one block's events (T.81 F.1.2.1 and F.1.2.2) from position ``e``; the new count, or
-    -1 if its DC difference needs more than 16 bits (they are counted afterwards, by
-    :func:`_count_events`). ``m``, the
-    mask of its AC non-zeros (:func:`_nonzero_masks`), leads straight from one to the next."""
+    -1 if its DC difference needs more than 16 bits. (They are counted afterwards, by
+    :func:`_count_events`.) ``m``, the mask of its AC non-zeros (:func:`_nonzero_masks`), leads
+    straight from one to the next."""
     dc = np.int64(block[0])
     diff = dc - previous_dc[c]
     previous_dc[c] = dc

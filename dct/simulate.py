@@ -34,7 +34,7 @@ import numpy as np
 from . import color, damage, entropy, quality
 from .integer_dct import forward_dct_islow, inverse_dct_islow_plane
 from .jit import kernel
-from .tables import SAMPLING_FACTORS, UNZIGZAG, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
+from .tables import SAMPLING_FACTORS, ZIGZAG, Setting, check_subsampling, check_table, quant_tables
 from .transform import BLOCK
 
 MIN_SIDE = 2 * quality.RADIUS + 1  # SSIM's 11x11 window must fit
